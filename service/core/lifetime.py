@@ -1,0 +1,568 @@
+"""The base lifetime model: the distribution of T_x and K_x from a survival model.
+
+A model answers, for many lives at once (arrays of ages and durations since selection), the
+survival function ₜp_x, ₜq_x, u|ₜq_x, the force μ_{x+t}, the density f_x(t) = ₜp_x μ_{x+t},
+the moments of T_x and K_x (whole life or temporary), and their quantiles.
+
+Most models are *year-grid* models: the mortality of each whole year of age is known exactly
+(in closed form for life tables, by fixed Gauss–Legendre panels for laws), and everything
+else follows from per-year pieces that are computed once per basis:
+
+* ``lam[r, j]``  the cumulative hazard from the row's first age to its whole age j;
+* ``year_moments[r, j, i]`` = ∫₀¹ sⁱ ₛp dt over the year of age j (i = 0..7);
+* ``tail_moments[r, j, i]`` = ∫₀^∞ tⁱ ₜp dt for a life at whole age j, by a backward
+  recursion of positive terms, so there is no cancellation;
+* ``curtate[r, j, k]`` = E[K^k] at whole age j, by the recursion K_j = 1 + K_{j+1} on survival.
+
+A "row" is one life table (a select table has one row per selection age and one for the
+ultimate rates; a law has a single row starting at age 0). A life at a fractional age
+x = j + f adds a partial first year, computed by the model's own within-year survival.
+"""
+
+from __future__ import annotations
+
+import math
+from abc import ABC, abstractmethod
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.special import comb
+
+from .errors import ComputationLimitError, DomainError, fmt
+
+MAX_ORDER = 8  # highest moment served
+N_MOM = MAX_ORDER  # ∫ tⁱ ₜp dt for i = 0..7 gives E[T^k] = k ∫ t^(k-1) ₜp dt for k = 1..8
+MAX_TERM = 10_000  # the longest term (years) a temporary quantity may ask for
+MAX_HORIZON = 10_000  # the longest span of years a basis may need for its computations
+CHUNK_ELEMENTS = 2_000_000  # lives × years per block in direct sums, to bound memory
+
+# Binomial coefficients binom(k, i) for the moment shifts.
+BINOM = comb(np.arange(N_MOM + 1)[:, None], np.arange(N_MOM + 1)[None, :], exact=False)
+
+_GL_X, _GL_W = np.polynomial.legendre.leggauss(16)
+GL_NODES = 0.5 * (_GL_X + 1.0)  # on [0, 1]
+GL_WEIGHTS = 0.5 * _GL_W
+
+
+def as_float_array(values, name: str = "value") -> np.ndarray:
+    arr = np.asarray(values, dtype=float)
+    if arr.ndim == 0:
+        arr = arr.reshape(1)
+    return arr
+
+
+def shift_moments(moments: np.ndarray, shift: np.ndarray) -> np.ndarray:
+    """From Mᵢ = ∫ tⁱ g(t) dt (i = 0..K-1) to ∫ (t + a)ᵏ g(t) dt (k = 0..K-1).
+
+    ``moments`` has shape (N, K) and ``shift`` shape (N,); all terms are non-negative when
+    a ≥ 0 and g ≥ 0, so the sum has no cancellation.
+    """
+    n_mom = moments.shape[-1]
+    k = np.arange(n_mom)
+    powers = np.where(
+        (k[:, None] - k[None, :]) >= 0,
+        np.asarray(shift, float)[..., None, None] ** np.maximum(k[:, None] - k[None, :], 0),
+        0.0,
+    )
+    coef = BINOM[:n_mom, :n_mom] * powers
+    return np.einsum("...ki,...i->...k", coef, moments)
+
+
+@dataclass(frozen=True)
+class Located:
+    """Lives placed on the year grid: row, whole-age index in the row, fraction of a year."""
+
+    row: np.ndarray
+    index: np.ndarray
+    frac: np.ndarray
+
+
+class LifetimeModel(ABC):
+    """A distribution of future lifetime for lives given by age and duration."""
+
+    #: ages at or beyond this are not lives of the basis; math.inf when there is none
+    limiting_age: float = math.inf
+    #: the highest age the basis can value (may be lower than the limiting age for laws)
+    max_age: float = math.inf
+    #: a name for messages, e.g. "Gompertz law"
+    kind: str = "basis"
+
+    # ----------------------------------------------------------------------------------
+    # Validation of lives
+
+    def check_lives(self, age, duration) -> None:
+        age = as_float_array(age)
+        bad = np.flatnonzero(~(age < self.max_age))
+        if bad.size:
+            i = int(bad[0])
+            raise DomainError(f"lives[{i}].age", self._age_message(age[i]))
+        bad = np.flatnonzero(~(age >= 0))
+        if bad.size:
+            i = int(bad[0])
+            raise DomainError(f"lives[{i}].age", f"age must be at least 0 (got {fmt(age[i])})")
+
+    def _age_message(self, age: float) -> str:
+        if self.max_age >= self.limiting_age:
+            return (
+                f"age must be below the limiting age {fmt(self.limiting_age)} of this "
+                f"{self.kind} (got {fmt(age)})"
+            )
+        return (
+            f"age must be below {fmt(round(self.max_age, 6))}, the oldest age this {self.kind} "
+            f"can value: beyond it survival for even a few years falls below 1e-20 "
+            f"(got {fmt(age)})"
+        )
+
+    # ----------------------------------------------------------------------------------
+    # Primitives a model provides
+
+    @abstractmethod
+    def span_hazard(self, age, duration, t0, t1) -> np.ndarray:
+        """The cumulative hazard between durations t0 ≤ t1 for lives aged ``age``.
+
+        ``age`` and ``duration`` have shape (N, 1) or broadcast with t0 and t1.
+        """
+
+    @abstractmethod
+    def force(self, age, duration, t) -> np.ndarray:
+        """μ_{x+t} with shape (N, T); NaN where it does not exist."""
+
+    @abstractmethod
+    def complete_moments(self, age, duration, orders: Sequence[int], term=None) -> np.ndarray:
+        """E[T_x^k] (or E[min(T_x, n)^k]) for each life and order: shape (N, K)."""
+
+    @abstractmethod
+    def curtate_moments(self, age, duration, orders: Sequence[int], term=None) -> np.ndarray:
+        """E[K_x^k] (or E[min(K_x, n)^k]) for each life and order: shape (N, K)."""
+
+    @abstractmethod
+    def complete_quantiles(self, age, duration, probabilities) -> np.ndarray:
+        """The least t with ₜq_x ≥ p: shape (N, P)."""
+
+    def horizon(self, age, duration) -> np.ndarray:
+        """Years after which survival is 0, or below e^-46 (negligible), for each life."""
+        return np.full(np.shape(age), float(MAX_HORIZON))
+
+    def kink_phase(self, age, duration) -> np.ndarray:
+        """The first duration in (0, 1] at which survival may stop being smooth.
+
+        Survival is smooth between phase + k and phase + k + 1 for whole k ≥ 0 (and on
+        [0, phase]), so composite Gauss–Legendre panels on those intervals are exact to
+        rounding. Tables have their kinks at whole ages of their rows.
+        """
+        y = as_float_array(age)
+        return np.ceil(y) - y + np.where(np.ceil(y) == y, 1.0, 0.0)
+
+    # ----------------------------------------------------------------------------------
+    # Derived quantities
+
+    @staticmethod
+    def _columns(age, duration):
+        age = as_float_array(age)[:, None]
+        duration = np.broadcast_to(as_float_array(duration), age.shape[:1])[:, None]
+        return age, duration
+
+    def cumulative_hazard(self, age, duration, t) -> np.ndarray:
+        a, d = self._columns(age, duration)
+        t = as_float_array(t)[None, :]
+        with np.errstate(over="ignore", invalid="ignore"):
+            return self.span_hazard(a, d, np.zeros_like(t), t)
+
+    def survival(self, age, duration, t) -> np.ndarray:
+        return np.exp(-self.cumulative_hazard(age, duration, t))
+
+    def death(self, age, duration, t) -> np.ndarray:
+        """ₜq_x = −expm1(−H): no cancellation for small t."""
+        return -np.expm1(-self.cumulative_hazard(age, duration, t))
+
+    def density(self, age, duration, t) -> np.ndarray:
+        """f_x(t) = ₜp_x μ_{x+t}; 0 where survival is 0, NaN where the density is infinite."""
+        surv = self.survival(age, duration, t)
+        mu = self.force(age, duration, t)
+        with np.errstate(invalid="ignore", over="ignore"):
+            dens = surv * mu
+        dens = np.where(surv == 0.0, 0.0, dens)
+        return np.where(np.isfinite(dens), dens, np.nan)
+
+    def deferred_death(self, age, duration, deferral, period: float = 1.0) -> np.ndarray:
+        """u|ₜq_x = ᵤp_x · ₜq_{x+u}, each factor from its own cumulative hazard."""
+        a, d = self._columns(age, duration)
+        u = as_float_array(deferral)[None, :]
+        with np.errstate(over="ignore", invalid="ignore"):
+            h_u = self.span_hazard(a, d, np.zeros_like(u), u)
+            h_t = self.span_hazard(a, d, u, u + float(period))
+            out = np.exp(-h_u) * -np.expm1(-h_t)
+        return np.where(np.isfinite(h_u), out, 0.0)
+
+    def complete_expectation(self, age, duration, term=None) -> np.ndarray:
+        return self.complete_moments(age, duration, [1], term)[:, 0]
+
+    def curtate_expectation(self, age, duration, term=None) -> np.ndarray:
+        return self.curtate_moments(age, duration, [1], term)[:, 0]
+
+    def complete_variance(self, age, duration, term=None) -> np.ndarray:
+        m = self.complete_moments(age, duration, [1, 2], term)
+        return np.maximum(m[:, 1] - m[:, 0] ** 2, 0.0)
+
+    def curtate_variance(self, age, duration, term=None) -> np.ndarray:
+        m = self.curtate_moments(age, duration, [1, 2], term)
+        return np.maximum(m[:, 1] - m[:, 0] ** 2, 0.0)
+
+    def curtate_quantiles(self, age, duration, probabilities) -> np.ndarray:
+        """The least whole k with P(K_x ≤ k) ≥ p, i.e. with ₖ₊₁p_x ≤ 1 − p.
+
+        Starts from the complete quantile t* (K ≤ k ⇔ T < k + 1) and settles the candidate
+        on the survival function itself, so that rounding in t* cannot move it by one.
+        """
+        probs = as_float_array(probabilities)
+        t_star = self.complete_quantiles(age, duration, probs)
+        k = np.maximum(np.ceil(t_star) - 1.0, 0.0)
+        a, d = self._columns(age, duration)
+        target = -np.log1p(-probs)[None, :]  # ₖ₊₁p ≤ 1 − p ⇔ H(k + 1) ≥ −log(1 − p)
+        with np.errstate(over="ignore", invalid="ignore"):
+            for _ in range(2):
+                h_next = self.span_hazard(a, d, np.zeros_like(k), k + 1.0)
+                k = np.where(h_next < target, k + 1.0, k)
+                h_here = self.span_hazard(a, d, np.zeros_like(k), k)
+                k = np.where((k >= 1.0) & (h_here >= target), k - 1.0, k)
+        return k
+
+    def life_table(self, start_age: float, end_age: float, radix: float, duration: float = 0.0):
+        """A derived life table for one life aged ``start_age`` (duration since selection
+        ``duration``), at ages start_age, start_age + 1, …, up to ``end_age``."""
+        start_age = float(start_age)
+        end_age = float(end_age)
+        if not start_age >= 0:
+            raise DomainError("start_age", f"start_age must be at least 0 (got {fmt(start_age)})")
+        if not start_age < self.max_age:
+            raise DomainError("start_age", self._age_message(start_age))
+        if end_age < start_age:
+            raise DomainError(
+                "end_age",
+                f"end_age must be at least start_age {fmt(start_age)} (got {fmt(end_age)})",
+            )
+        n = int(math.floor(end_age - start_age + 1e-9)) + 1
+        ages = start_age + np.arange(n, dtype=float)
+        if not ages[-1] < self.max_age:
+            raise DomainError(
+                "end_age",
+                f"end_age must be below {fmt(round(self.max_age, 6))} for this {self.kind} "
+                f"(got {fmt(end_age)})",
+            )
+        durations = float(duration) + np.arange(n, dtype=float)
+        self.check_lives(np.array([start_age]), np.array([float(duration)]))
+        surv = self.survival([start_age], [float(duration)], np.arange(n + 1, dtype=float))[0]
+        l_col = radix * surv
+        d_col = radix * (surv[:-1] - surv[1:])
+        q_col = self.death(ages, durations, [1.0])[:, 0]
+        complete = self.complete_expectation(ages, durations)
+        curtate = self.curtate_expectation(ages, durations)
+        return {
+            "age": ages,
+            "l": l_col[:-1],
+            "d": d_col,
+            "q": q_col,
+            "complete": complete,
+            "curtate": curtate,
+        }
+
+
+def _orders(orders: Sequence[int]) -> np.ndarray:
+    orders = np.asarray(list(orders), dtype=int)
+    if orders.size == 0 or orders.min() < 1 or orders.max() > MAX_ORDER:
+        raise DomainError("orders", f"orders must be whole numbers from 1 to {MAX_ORDER}")
+    return orders
+
+
+def _term(term) -> int | None:
+    if term is None:
+        return None
+    if int(term) != term or term < 1 or term > MAX_TERM:
+        raise DomainError("term", f"term must be a whole number from 1 to {MAX_TERM} (got {term})")
+    return int(term)
+
+
+class YearGridModel(LifetimeModel):
+    """A model whose mortality is organised by whole years of age in one or more rows.
+
+    Subclasses set ``row_start`` (whole first age of each row), ``lam`` (R, L+1),
+    ``year_moments`` (R, L, N_MOM) and call :meth:`_finish_grid`, and they provide the
+    within-year primitives :meth:`_year_hazard`, :meth:`_year_partial` and :meth:`_year_force`.
+    Rows are padded to a common length L with years of zero survival (hazard +inf).
+    """
+
+    row_start: np.ndarray  # (R,) whole ages
+    row_end: np.ndarray  # (R,) the age at which survival in the row reaches 0 (or the grid ends)
+    lam: np.ndarray  # (R, L + 1) cumulative hazard at whole ages from the row's first age
+    year_moments: np.ndarray  # (R, L, N_MOM)
+    tail_moments: np.ndarray  # (R, L + 1, N_MOM)
+    curtate_table: np.ndarray  # (R, L + 1, MAX_ORDER + 1)
+
+    # ---- per-year primitives ------------------------------------------------------------
+
+    @abstractmethod
+    def _year_hazard(self, row, index, f0, f1) -> np.ndarray:
+        """−log(S_j(f1)/S_j(f0)) within the year of whole age j = row_start + index."""
+
+    @abstractmethod
+    def _year_partial(self, row, index, f0, length) -> np.ndarray:
+        """∫₀^a tⁱ S_j(f0 + t)/S_j(f0) dt for i = 0..N_MOM-1, a = length ≤ 1 − f0: (N, N_MOM)."""
+
+    @abstractmethod
+    def _year_force(self, row, index, f) -> np.ndarray:
+        """μ at age j + f within the year (right-continuous at whole ages)."""
+
+    @abstractmethod
+    def _locate(self, age, duration) -> Located:
+        """The row, whole-age index and fraction of each life."""
+
+    def horizon(self, age, duration):
+        age = as_float_array(age)
+        duration = np.broadcast_to(as_float_array(duration), age.shape)
+        loc = self._locate(age, duration)
+        n_years = self.year_moments.shape[1]
+        return self.row_start[loc.row] + n_years - age
+
+    def kink_phase(self, age, duration):
+        age = as_float_array(age)
+        duration = np.broadcast_to(as_float_array(duration), age.shape)
+        loc = self._locate(age, duration)
+        return 1.0 - loc.frac
+
+    # ---- compile-time ---------------------------------------------------------------------
+
+    def _finish_grid(self) -> None:
+        """The tail moments and curtate moments at whole ages, by backward recursion."""
+        lam = self.lam
+        n_rows, n_years = self.year_moments.shape[:2]
+        with np.errstate(invalid="ignore", over="ignore"):
+            p = np.exp(-(lam[:, 1:] - lam[:, :-1]))
+        p = np.where(np.isfinite(lam[:, :-1]), np.nan_to_num(p, nan=0.0), 0.0)
+        self.one_year_survival = p  # (R, L)
+        tail = np.zeros((n_rows, n_years + 1, N_MOM))
+        curt = np.zeros((n_rows, n_years + 1, MAX_ORDER + 1))
+        curt[:, :, 0] = 1.0
+        shift_one = BINOM[:N_MOM, :N_MOM]  # (t + 1)^k expansion
+        shift_one_k = BINOM[: MAX_ORDER + 1, : MAX_ORDER + 1]
+        ym = self.year_moments
+        for j in range(n_years - 1, -1, -1):
+            nxt = tail[:, j + 1, :] @ shift_one.T
+            tail[:, j, :] = ym[:, j, :] + p[:, j, None] * nxt
+            curt[:, j, :] = p[:, j, None] * (curt[:, j + 1, :] @ shift_one_k.T)
+            curt[:, j, 0] = 1.0
+        self.tail_moments = tail
+        self.curtate_table = curt
+
+    # ---- the hot paths ----------------------------------------------------------------------
+
+    def span_hazard(self, age, duration, t0, t1):
+        age, duration, t0, t1 = np.broadcast_arrays(
+            np.asarray(age, float), np.asarray(duration, float), np.asarray(t0, float),
+            np.asarray(t1, float),
+        )
+        loc0 = self._locate_at(age, duration, t0)
+        loc1 = self._locate_at(age, duration, t1)
+        n_years = self.year_moments.shape[1]
+        r = loc0.row
+        j0, f0, j1, f1 = loc0.index, loc0.frac, loc1.index, loc1.frac
+        beyond = j1 >= n_years
+        j0c = np.minimum(j0, n_years - 1)
+        j1c = np.minimum(j1, n_years - 1)
+        with np.errstate(invalid="ignore", over="ignore"):
+            same = self._year_hazard(r, j0c, f0, np.where(j1 == j0, f1, 1.0))
+            first_end = np.minimum(j0 + 1, n_years)
+            middle = self.lam[r, np.minimum(j1, n_years)] - self.lam[r, first_end]
+            last = self._year_hazard(r, j1c, np.zeros_like(f1), f1)
+            out = np.where(j1 == j0, same, same + np.where(j1 > j0 + 0, middle + last, 0.0))
+        out = np.where(beyond & ~((j1 == n_years) & (f1 == 0.0)), np.inf, out)
+        out = np.where(t1 <= t0, 0.0, out)
+        return out
+
+    def _locate_at(self, age, duration, t) -> Located:
+        """Lives aged age + t (duration + t): the row is that of the life at t = 0."""
+        base = self._locate(age.ravel(), duration.ravel())
+        start = self.row_start[base.row]
+        y = age.ravel() + t.ravel() - start
+        j = np.floor(y)
+        f = y - j
+        return Located(base.row.reshape(age.shape), j.astype(np.int64).reshape(age.shape),
+                       f.reshape(age.shape))
+
+    def force(self, age, duration, t):
+        a, d = self._columns(age, duration)
+        t = as_float_array(t)[None, :]
+        a, d, t = np.broadcast_arrays(a, d, t)
+        loc = self._locate_at(a, d, t)
+        n_years = self.year_moments.shape[1]
+        inside = loc.index < n_years
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+            mu = self._year_force(loc.row, np.minimum(loc.index, n_years - 1), loc.frac)
+            h = self.span_hazard(a, d, np.zeros_like(t), t)
+        mu = np.where(inside & np.isfinite(h), mu, np.nan)
+        return np.where(np.isfinite(mu), mu, np.nan)
+
+    def complete_moments(self, age, duration, orders, term=None):
+        orders = _orders(orders)
+        term = _term(term)
+        age = as_float_array(age)
+        duration = np.broadcast_to(as_float_array(duration), age.shape)
+        loc = self._locate(age, duration)
+        n_mom = int(orders.max())
+        if term is None:
+            ints = self._whole_life_integrals(loc, n_mom)
+        else:
+            ints = self._temporary_integrals(loc, n_mom, term)
+        # E[T^k] = k ∫ t^(k-1) ₜp dt
+        return orders[None, :] * ints[:, orders - 1]
+
+    def _whole_life_integrals(self, loc: Located, n_mom: int) -> np.ndarray:
+        """∫₀^∞ tⁱ ₜp_x dt for i < n_mom."""
+        r, j, f = loc.row, loc.index, loc.frac
+        if not np.any(f > 0.0):
+            return self.tail_moments[r, j, :n_mom]
+        partial = self._year_partial(r, j, f, 1.0 - f)[:, :n_mom]
+        with np.errstate(over="ignore", invalid="ignore"):
+            s_next = np.exp(-self._year_hazard(r, j, f, np.ones_like(f)))
+        s_next = np.nan_to_num(s_next, nan=0.0)
+        tail = shift_moments(self.tail_moments[r, j + 1, :n_mom], 1.0 - f)
+        return partial + s_next[:, None] * tail
+
+    def _temporary_integrals(self, loc: Located, n_mom: int, term: int) -> np.ndarray:
+        """∫₀ⁿ tⁱ ₜp_x dt for i < n_mom, as a sum of positive per-year pieces."""
+        r, j, f = loc.row, loc.index, loc.frac
+        n_lives = r.shape[0]
+        n_years = self.year_moments.shape[1]
+        out = np.zeros((n_lives, n_mom))
+        # first (possibly partial) year: [0, 1 − f]
+        first_len = 1.0 - f
+        jc = np.minimum(j, n_years - 1)
+        out += self._year_partial(r, jc, f, np.minimum(first_len, term))[:, :n_mom]
+        if term <= 1 and np.all(first_len >= term):
+            return out
+        with np.errstate(over="ignore", invalid="ignore"):
+            h_first = self._year_hazard(r, jc, f, np.ones_like(f))
+        log_s = -h_first  # log survival to the start of the next whole year
+        step = max(1, CHUNK_ELEMENTS // max(n_lives * n_mom, 1))
+        m_all = np.arange(1, term + 1)
+        for start in range(0, m_all.size, step):
+            m = m_all[start : start + step]  # whole years j + m, starting at t = first_len + m - 1
+            jm = j[:, None] + m[None, :]
+            inside = jm < n_years
+            jmc = np.minimum(jm, n_years - 1)
+            t_start = first_len[:, None] + (m[None, :] - 1.0)
+            length = np.clip(term - t_start, 0.0, 1.0)
+            with np.errstate(invalid="ignore", over="ignore"):
+                log_s_m = log_s[:, None] - (
+                    self.lam[r[:, None], jmc] - self.lam[r[:, None], np.minimum(j + 1, n_years)[:, None]]
+                )
+            surv = np.where(inside & np.isfinite(log_s_m), np.exp(log_s_m), 0.0)
+            full = length >= 1.0
+            pieces = np.where(full[..., None], self.year_moments[r[:, None], jmc], 0.0)
+            part_needed = inside & (length > 0.0) & ~full
+            if np.any(part_needed):
+                idx = np.nonzero(part_needed)
+                pieces[idx] = self._year_partial(
+                    r[idx[0]], jmc[idx], np.zeros(idx[0].size), length[idx]
+                )
+            pieces = pieces[..., :n_mom]
+            shifted = shift_moments(pieces, t_start)
+            out += np.einsum("nm,nmk->nk", surv, shifted)
+            if np.all(t_start[:, -1] + 1.0 >= term):
+                break
+        return out
+
+    def curtate_moments(self, age, duration, orders, term=None):
+        orders = _orders(orders)
+        term = _term(term)
+        age = as_float_array(age)
+        duration = np.broadcast_to(as_float_array(duration), age.shape)
+        loc = self._locate(age, duration)
+        if term is None and not np.any(loc.frac > 0.0):
+            return self.curtate_table[loc.row, loc.index][:, orders]
+        return self._curtate_direct(age, duration, loc, orders, term)
+
+    def _curtate_direct(self, age, duration, loc, orders, term):
+        """E[min(K, n)^k] = Σ_{m=1}^{n} (m^k − (m−1)^k) ₘp_x, a sum of positive terms."""
+        n_years = self.year_moments.shape[1]
+        end = self.row_start[loc.row] + n_years  # no survival beyond the grid
+        horizon = int(np.ceil(np.max(end - age))) if age.size else 0
+        n_terms = horizon if term is None else min(horizon, term)
+        out = np.zeros((age.size, orders.size))
+        if n_terms <= 0:
+            return out
+        a = age[:, None]
+        d = duration[:, None]
+        step = max(1, CHUNK_ELEMENTS // max(age.size, 1))
+        for start in range(1, n_terms + 1, step):
+            m = np.arange(start, min(start + step, n_terms + 1), dtype=float)[None, :]
+            with np.errstate(over="ignore", invalid="ignore"):
+                h = self.span_hazard(a, d, np.zeros_like(m), m)
+            surv = np.where(np.isfinite(h), np.exp(-h), 0.0)
+            weights = m[..., None] ** orders - (m[..., None] - 1.0) ** orders  # (1, M, K)
+            out += np.einsum("nm,nmk->nk", surv, np.broadcast_to(weights, surv.shape + (orders.size,)))
+        return out
+
+    def complete_quantiles(self, age, duration, probabilities):
+        """Locates the year in which H crosses −log(1 − p), then solves within the year."""
+        probs = as_float_array(probabilities)
+        age = as_float_array(age)
+        duration = np.broadcast_to(as_float_array(duration), age.shape)
+        loc = self._locate(age, duration)
+        r, j, f = loc.row, loc.index, loc.frac
+        n_years = self.year_moments.shape[1]
+        target = -np.log1p(-probs)[None, :]  # (1, P)
+        with np.errstate(over="ignore", invalid="ignore"):
+            h_first = self._year_hazard(r, j, f, np.ones_like(f))  # to the next whole age
+        # cumulative hazard from the life to each whole age j+1, j+2, ...
+        out = np.empty((age.size, probs.size))
+        step = max(1, CHUNK_ELEMENTS // max((n_years + 1) * probs.size, 1))
+        for lo in range(0, age.size, step):
+            sl = slice(lo, lo + step)
+            out[sl] = self._solve_chunk(r[sl], j[sl], f[sl], h_first[sl], target)
+        return out
+
+    def _solve_chunk(self, r, j, f, h_first, target):
+        """Quantiles for a block of lives: target hazards (1, P) → t (n, P)."""
+        n_years = self.year_moments.shape[1]
+        lam_rows = self.lam[r]  # (n, L+1)
+        base = lam_rows[np.arange(r.size), np.minimum(j + 1, n_years)]
+        with np.errstate(invalid="ignore"):
+            rel = lam_rows - base[:, None] + h_first[:, None]  # hazard from the life to age i
+        idx = np.arange(n_years + 1)[None, :]
+        rel = np.where(idx <= j[:, None], -np.inf, rel)
+        rel = np.where(np.isnan(rel), np.inf, rel)
+        # the first whole-age index at which the hazard reaches the target; the year is one less
+        first = np.sum(rel[:, None, :] < target[:, :, None], axis=2)
+        in_first = target <= h_first[:, None]
+        year = np.where(in_first, j[:, None], np.clip(first - 1, (j + 1)[:, None], n_years - 1))
+        start = np.where(in_first, f[:, None], 0.0)
+        h_start = np.where(in_first, 0.0, np.take_along_axis(rel, year, axis=1))
+        rows = np.broadcast_to(r[:, None], year.shape)
+        s = self._invert_year(rows.ravel(), year.ravel(), start.ravel(),
+                              np.broadcast_to(target - h_start, year.shape).ravel())
+        s = s.reshape(year.shape)
+        return (year - j[:, None]) + s - f[:, None]
+
+    def _invert_year(self, row, index, f0, h):
+        """The fraction s ≥ f0 in the year with −log(S(s)/S(f0)) = h (vectorised bisection,
+        refined by the subclass when it has a closed form)."""
+        lo = f0.copy()
+        hi = np.ones_like(f0)
+        for _ in range(60):
+            mid = 0.5 * (lo + hi)
+            with np.errstate(over="ignore", invalid="ignore"):
+                hm = self._year_hazard(row, index, f0, mid)
+            go_up = hm < h
+            lo = np.where(go_up, mid, lo)
+            hi = np.where(go_up, hi, mid)
+        return 0.5 * (lo + hi)
+
+
+def check_horizon(n_years: int, kind: str) -> None:
+    if n_years > MAX_HORIZON:
+        raise ComputationLimitError(
+            "",
+            f"this {kind} keeps lives alive for more than {MAX_HORIZON:,} years, beyond what "
+            f"the service computes; check its parameters",
+        )
