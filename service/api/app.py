@@ -1,0 +1,71 @@
+"""create_app(): the litestar application with its routes, errors, metrics and OpenAPI."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+from litestar import Litestar
+
+from service.bases.catalogue import Catalogue
+from service.settings import Settings, from_environment
+
+from .bases import bases_handlers
+from .calculations import REQUEST_TYPES, calculation_handlers
+from .observability import Metrics, observe
+from .openapi import add_request_bodies, openapi_config
+from .operations import operations_handlers
+from .problems import EXCEPTION_HANDLERS
+
+
+class LifetimeApp(Litestar):
+    """Litestar, with every HTTP request (matched or not) passing through ``observe``."""
+
+    _observed: Any = None
+
+    async def __call__(self, scope: Any, receive: Any, send: Any) -> None:
+        if scope["type"] == "http" and self._observed is not None:
+            await self._observed(scope, receive, send)
+        else:
+            await super().__call__(scope, receive, send)
+
+
+def create_app(settings: Settings | None = None, catalogue: Catalogue | None = None) -> LifetimeApp:
+    """The application. Stored bases are loaded at start-up unless ``catalogue`` is loaded.
+
+    ``GET /ready`` answers 503 until they are.
+    """
+    settings = settings or Settings()
+    if catalogue is None:
+        folder = Path(settings.bases_dir) if settings.bases_dir else None
+        catalogue = Catalogue(folder, settings.cache_size)
+    metrics = Metrics(catalogue)
+    app = LifetimeApp(
+        route_handlers=[
+            *calculation_handlers(settings, catalogue),
+            *bases_handlers(catalogue),
+            *operations_handlers(catalogue, metrics),
+        ],
+        exception_handlers=EXCEPTION_HANDLERS,  # type: ignore[arg-type]
+        on_startup=[catalogue.load],
+        openapi_config=openapi_config(),
+        request_max_body_size=None,  # the calculation handlers enforce max_body_bytes
+        logging_config=None,
+        debug=False,
+    )
+    add_request_bodies(app, REQUEST_TYPES)
+    app.state["settings"] = settings
+    app.state["catalogue"] = catalogue
+    app.state["metrics"] = metrics
+    parent_call = Litestar.__call__
+
+    async def call_litestar(scope: Any, receive: Any, send: Any) -> None:
+        await parent_call(app, scope, receive, send)
+
+    app._observed = observe(call_litestar, metrics)
+    return app
+
+
+def create_app_from_environment() -> LifetimeApp:
+    """For worker processes started by uvicorn: settings from ``LIFETIME_*`` variables."""
+    return create_app(from_environment())

@@ -1,0 +1,165 @@
+"""Reading bases: GET /v1/bases, GET /v1/bases/{id} and GET /v1/laws."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import msgspec
+from litestar import Request, Response, get
+from litestar.params import FromPath
+
+from service.bases.catalogue import Catalogue, StoredBasis
+from service.bases.definitions import BASIS_KINDS, CROSS_FIELD_RULES, kind_of
+
+from . import schemas as s
+from .calculations import _error_response
+
+BASES_TAG = "bases"
+
+
+def _detail(basis: StoredBasis) -> s.StoredBasisDetail:
+    return s.StoredBasisDetail(
+        id=basis.id,
+        title=basis.title,
+        type=basis.type,
+        description=basis.description,
+        source=basis.source,
+        version=basis.version,
+        fingerprint=basis.fingerprint,
+        definition=basis.definition,  # type: ignore[arg-type]
+    )
+
+
+def etag_matches(if_none_match: str | None, etag: str) -> bool:
+    """Whether an If-None-Match header matches ``etag`` (weak comparison, RFC 9110)."""
+    if not if_none_match:
+        return False
+    for candidate in if_none_match.split(","):
+        candidate = candidate.strip()
+        if candidate == "*":
+            return True
+        if candidate.startswith("W/"):
+            candidate = candidate[2:]
+        if candidate.strip('"') == etag:
+            return True
+    return False
+
+
+# ---- GET /v1/laws: described from the Structs themselves -------------------------------------
+
+
+def _number_domain(info: Any, whole: bool) -> str:
+    parts = []
+    if getattr(info, "gt", None) is not None:
+        parts.append(f"> {info.gt:g}")
+    if getattr(info, "ge", None) is not None:
+        parts.append(f"≥ {info.ge:g}")
+    if getattr(info, "lt", None) is not None:
+        parts.append(f"< {info.lt:g}")
+    if getattr(info, "le", None) is not None:
+        parts.append(f"≤ {info.le:g}")
+    noun = "whole number" if whole else "number"
+    return f"{noun} {' and '.join(parts)}" if parts else f"any {noun}"
+
+
+def _unwrap(info: msgspec.inspect.Type) -> tuple[msgspec.inspect.Type, str]:
+    """The type under any metadata, and the metadata's description."""
+    description = ""
+    while isinstance(info, msgspec.inspect.Metadata):
+        extra = info.extra_json_schema or {}
+        description = description or str(extra.get("description", ""))
+        info = info.type
+    return info, description
+
+
+def domain_text(info: msgspec.inspect.Type) -> str:
+    """The values a field allows, in words, from its msgspec type information."""
+    if isinstance(info, msgspec.inspect.FloatType):
+        return _number_domain(info, whole=False)
+    if isinstance(info, msgspec.inspect.IntType):
+        return _number_domain(info, whole=True)
+    if isinstance(info, msgspec.inspect.LiteralType):
+        return "one of " + ", ".join(str(v) for v in info.values)
+    if isinstance(info, msgspec.inspect.ListType):
+        low = info.min_length or 0
+        high = info.max_length
+        count = f"{low} to {high}" if high is not None else f"at least {low}"
+        return f"list of {count} items, each {domain_text(_unwrap(info.item_type)[0])}"
+    return str(type(info).__name__)
+
+
+def describe_laws() -> s.LawsResponse:
+    laws = []
+    for kind in BASIS_KINDS:
+        info = msgspec.inspect.type_info(kind)
+        assert isinstance(info, msgspec.inspect.StructType)
+        parameters = []
+        for field in info.fields:
+            field_type, description = _unwrap(field.type)
+            parameters.append(
+                s.LawParameter(
+                    name=field.encode_name,
+                    domain=domain_text(field_type),
+                    description=description,
+                )
+            )
+        tag = kind.__struct_config__.tag
+        laws.append(
+            s.LawDescription(
+                type=str(tag),
+                definition=(kind.__doc__ or "").strip().splitlines()[0],
+                parameters=parameters,
+                rules=list(CROSS_FIELD_RULES.get(str(tag), ())),
+            )
+        )
+    return s.LawsResponse(laws=laws)
+
+
+def bases_handlers(catalogue: Catalogue) -> list[Any]:
+    laws_answer = describe_laws()
+    common: dict[str, Any] = {"sync_to_thread": False, "tags": [BASES_TAG]}
+
+    @get("/v1/bases", operation_id="listBases", summary="The stored bases", **common)
+    def list_bases() -> s.StoredBasesResponse:
+        """Every stored basis with its id, title, type, source and fingerprint."""
+        return s.StoredBasesResponse(
+            bases=[
+                s.StoredBasisSummary(
+                    id=b.id,
+                    title=b.title,
+                    type=kind_of(b.definition),
+                    source=b.source,
+                    fingerprint=b.fingerprint,
+                )
+                for b in catalogue.stored()
+            ]
+        )
+
+    @get(
+        "/v1/bases/{basis_id:str}",
+        operation_id="getBasis",
+        summary="One stored basis, with its definition in the inline form",
+        responses={
+            404: _error_response("No stored basis has this id."),
+        },
+        **common,
+    )
+    def get_basis(
+        request: Request[Any, Any, Any], basis_id: FromPath[str]
+    ) -> Response[s.StoredBasisDetail]:
+        """The basis's metadata and its definition, exactly as it can be sent inline.
+
+        The ETag is the fingerprint; a request with a matching If-None-Match gets 304.
+        """
+        basis = catalogue.get(basis_id)
+        headers = {"ETag": f'"{basis.fingerprint}"', "Cache-Control": "no-cache"}
+        if etag_matches(request.headers.get("if-none-match"), basis.fingerprint):
+            return Response(content=b"", status_code=304, headers=headers)
+        return Response(_detail(basis), headers=headers)
+
+    @get("/v1/laws", operation_id="listLaws", summary="The inline basis types and their parameters", **common)
+    def laws() -> s.LawsResponse:
+        """Each inline `type` with its parameters, their domains and a one-line definition."""
+        return laws_answer
+
+    return [list_bases, get_basis, laws]

@@ -1,0 +1,388 @@
+"""The calculation endpoints: POST /v1/survival, /v1/deferred-death, /v1/expectation,
+/v1/moments, /v1/quantiles and /v1/life-table.
+
+Each handler takes one straight path: read and decode the body (strict msgspec), resolve the
+basis (a stored model, or a cached or freshly compiled inline one), check the lives, make one
+vectorised call per quantity on the core, and build the answer Struct.
+
+Handlers are ``async`` because they read the body themselves. Small requests compute on the
+event loop: a thread hop costs more than the numpy calls. Work above
+``OFFLOAD_VALUES`` values, and every compilation of a new inline basis (milliseconds for a
+law), runs in a worker thread so that the event loop keeps answering other requests.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from collections.abc import Callable
+from typing import Any, TypeVar
+
+import anyio.to_thread
+import msgspec
+import numpy as np
+from litestar import Request, Response, post
+from litestar.openapi.datastructures import ResponseSpec
+
+from service.bases.catalogue import Catalogue, ResolvedBasis
+from service.core.errors import DomainError
+from service.settings import Settings
+from service.version import __version__
+
+from . import schemas as s
+from .body import decode, read_body
+from .problems import PROBLEM_MEDIA_TYPE, Problem, bad_field, domain_problem
+
+T = TypeVar("T")
+
+#: lives × durations above which the computation runs in a worker thread
+OFFLOAD_VALUES = 20_000
+
+CALCULATION_TAG = "calculations"
+
+_DECODERS = {
+    cls: msgspec.json.Decoder(cls)
+    for cls in (
+        s.SurvivalRequest,
+        s.DeferredDeathRequest,
+        s.ExpectationRequest,
+        s.MomentsRequest,
+        s.QuantilesRequest,
+        s.LifeTableRequest,
+    )
+}
+
+#: path -> request Struct; the OpenAPI document takes the request bodies from here
+REQUEST_TYPES: dict[str, type[msgspec.Struct]] = {
+    "/v1/survival": s.SurvivalRequest,
+    "/v1/deferred-death": s.DeferredDeathRequest,
+    "/v1/expectation": s.ExpectationRequest,
+    "/v1/moments": s.MomentsRequest,
+    "/v1/quantiles": s.QuantilesRequest,
+    "/v1/life-table": s.LifeTableRequest,
+}
+
+
+def _error_response(description: str) -> ResponseSpec:
+    return ResponseSpec(
+        data_container=s.ProblemDocument,
+        media_type=PROBLEM_MEDIA_TYPE,
+        description=description,
+        generate_examples=False,
+    )
+
+
+ERROR_RESPONSES = {
+    400: _error_response("The body is not JSON or does not fit the schema."),
+    404: _error_response("`basis` names no stored basis."),
+    413: _error_response("The body is larger than max_body_bytes."),
+    415: _error_response("The body is not application/json."),
+    422: _error_response(
+        "Well formed but impossible: a parameter outside its domain, an age at or past the "
+        "limiting age, a table that does not close, too many lives or durations."
+    ),
+    503: _error_response("The service is still loading its stored bases."),
+}
+
+
+def _values(array: np.ndarray) -> list:
+    """A float array as (nested) lists; NaN and ±inf are written as null by msgspec."""
+    return array.tolist()
+
+
+class Calculations:
+    """The shared steps of every calculation handler."""
+
+    def __init__(self, settings: Settings, catalogue: Catalogue):
+        self.settings = settings
+        self.catalogue = catalogue
+
+    async def read(self, request: Request[Any, Any, Any], request_type: type[T]) -> T:
+        body = await read_body(request, self.settings.max_body_bytes)
+        return decode(_DECODERS[request_type], body)
+
+    async def basis(
+        self, request: Request[Any, Any, Any], basis: str | s.BasisDefinition
+    ) -> ResolvedBasis:
+        found = self.catalogue.lookup(basis)
+        if not isinstance(found, ResolvedBasis):
+            definition: Any = basis
+            try:
+                found = await anyio.to_thread.run_sync(
+                    self.catalogue.compile_inline, definition, found
+                )
+            except DomainError as exc:
+                raise domain_problem(exc, "basis") from None
+        request.scope["state"]["basis_fingerprint"] = found.fingerprint
+        return found
+
+    def lives(self, lives: list[s.Life], basis: ResolvedBasis) -> tuple[np.ndarray, np.ndarray]:
+        n = len(lives)
+        if n > self.settings.max_lives:
+            raise bad_field(
+                "$.lives",
+                f"at most {self.settings.max_lives} lives in one request (got {n})",
+            )
+        if n == 1:
+            age = np.array([lives[0].age])
+            duration = np.array([lives[0].duration])
+        else:
+            age = np.fromiter((life.age for life in lives), dtype=float, count=n)
+            duration = np.fromiter((life.duration for life in lives), dtype=float, count=n)
+        basis.model.check_lives(age, duration)  # DomainError fields are "lives[i].age" …
+        return age, duration
+
+    def durations(self, values: list[float], field: str, lives: int) -> np.ndarray:
+        if len(values) > self.settings.max_durations:
+            raise bad_field(
+                field,
+                f"at most {self.settings.max_durations} values in one request "
+                f"(got {len(values)})",
+            )
+        self.check_size(lives * len(values), field)
+        return np.asarray(values, dtype=float)
+
+    def check_size(self, count: int, field: str) -> None:
+        if count > self.settings.max_values:
+            raise bad_field(
+                field,
+                f"lives times values would give {count} numbers in one answer; at most "
+                f"{self.settings.max_values} are allowed, so split the request",
+            )
+
+    @staticmethod
+    async def run(work: Callable[[], T], size: int) -> T:
+        if size > OFFLOAD_VALUES:
+            return await anyio.to_thread.run_sync(work)
+        return work()
+
+
+def _reference(basis: ResolvedBasis) -> s.BasisReference:
+    return s.BasisReference(id=basis.id, fingerprint=basis.fingerprint)
+
+
+def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
+    calc = Calculations(settings, catalogue)
+    common: dict[str, Any] = {
+        "status_code": 200,
+        "tags": [CALCULATION_TAG],
+        "responses": ERROR_RESPONSES,
+    }
+
+    @post("/v1/survival", operation_id="survival", summary="Survival, death, force and density at durations t", **common)
+    async def survival(request: Request[Any, Any, Any]) -> s.SurvivalResponse:
+        """For each life aged x and each t: ₜp_x, ₜq_x, μ_{x+t} and f_x(t) = ₜp_x μ_{x+t}."""
+        req = await calc.read(request, s.SurvivalRequest)
+        basis = await calc.basis(request, req.basis)
+        age, duration = calc.lives(req.lives, basis)
+        t = calc.durations(req.t, "$.t", age.size)
+        model = basis.model
+
+        def work():
+            return (
+                model.survival(age, duration, t),
+                model.death(age, duration, t),
+                model.force(age, duration, t),
+                model.density(age, duration, t),
+            )
+
+        surv, death, force, density = await calc.run(work, age.size * t.size)
+        results = [
+            s.SurvivalResult(age=a, duration=d, survival=p, death=q, force=f, density=g)
+            for a, d, p, q, f, g in zip(
+                age.tolist(),
+                duration.tolist(),
+                _values(surv),
+                _values(death),
+                _values(force),
+                _values(density),
+            )
+        ]
+        return s.SurvivalResponse(_reference(basis), __version__, results)
+
+    @post("/v1/deferred-death", operation_id="deferredDeath", summary="Deferred death probabilities u|ₜq_x", **common)
+    async def deferred_death(request: Request[Any, Any, Any]) -> s.DeferredDeathResponse:
+        """For each life and each deferral u: u|ₜq_x = P(u < T_x ≤ u + t), t = `period`.
+
+        With period 1 and a whole deferral k this is P(K_x = k).
+        """
+        req = await calc.read(request, s.DeferredDeathRequest)
+        basis = await calc.basis(request, req.basis)
+        age, duration = calc.lives(req.lives, basis)
+        u = calc.durations(req.deferral, "$.deferral", age.size)
+        model, period = basis.model, req.period
+        values = await calc.run(
+            lambda: model.deferred_death(age, duration, u, period), age.size * u.size
+        )
+        results = [
+            s.DeferredDeathResult(age=a, duration=d, probability=p)
+            for a, d, p in zip(age.tolist(), duration.tolist(), _values(values))
+        ]
+        return s.DeferredDeathResponse(_reference(basis), __version__, results)
+
+    @post("/v1/expectation", operation_id="expectation", summary="Expectations of life and their variances", **common)
+    async def expectation(request: Request[Any, Any, Any]) -> s.ExpectationResponse:
+        """e̊_x and e_x (or, with `term` n, E[min(T_x, n)] and E[min(K_x, n)]) and variances."""
+        req = await calc.read(request, s.ExpectationRequest)
+        basis = await calc.basis(request, req.basis)
+        age, duration = calc.lives(req.lives, basis)
+        model, term = basis.model, req.term
+
+        def work():
+            return (
+                model.complete_expectation(age, duration, term),
+                model.curtate_expectation(age, duration, term),
+                model.complete_variance(age, duration, term),
+                model.curtate_variance(age, duration, term),
+            )
+
+        complete, curtate, complete_var, curtate_var = await calc.run(work, age.size)
+        results = [
+            s.ExpectationResult(
+                age=a,
+                duration=d,
+                complete=e1,
+                curtate=e2,
+                complete_variance=v1,
+                curtate_variance=v2,
+            )
+            for a, d, e1, e2, v1, v2 in zip(
+                age.tolist(),
+                duration.tolist(),
+                _values(complete),
+                _values(curtate),
+                _values(complete_var),
+                _values(curtate_var),
+            )
+        ]
+        return s.ExpectationResponse(_reference(basis), __version__, results)
+
+    @post("/v1/moments", operation_id="moments", summary="Raw moments of T_x and K_x", **common)
+    async def moments(request: Request[Any, Any, Any]) -> s.MomentsResponse:
+        """E[T_x^k] and E[K_x^k] for each order k (of min(T_x, n), min(K_x, n) with `term`)."""
+        req = await calc.read(request, s.MomentsRequest)
+        orders = req.orders
+        seen: set[int] = set()
+        for i, k in enumerate(orders):
+            if k in seen:
+                field = f"$.orders[{i}]"
+                message = f"order {k} appears twice; the orders must be distinct"
+                raise Problem("invalid-request", f"{field}: {message}", [(field, message)])
+            seen.add(k)
+        basis = await calc.basis(request, req.basis)
+        age, duration = calc.lives(req.lives, basis)
+        model, term = basis.model, req.term
+
+        def work():
+            return (
+                model.complete_moments(age, duration, orders, term),
+                model.curtate_moments(age, duration, orders, term),
+            )
+
+        complete, curtate = await calc.run(work, age.size * len(orders))
+        results = [
+            s.MomentsResult(age=a, duration=d, complete=c1, curtate=c2)
+            for a, d, c1, c2 in zip(
+                age.tolist(), duration.tolist(), _values(complete), _values(curtate)
+            )
+        ]
+        return s.MomentsResponse(_reference(basis), __version__, results)
+
+    @post("/v1/quantiles", operation_id="quantiles", summary="Quantiles of T_x and K_x", **common)
+    async def quantiles(request: Request[Any, Any, Any]) -> s.QuantilesResponse:
+        """For each p: the t with ₜq_x = p, and the least whole k with P(K_x ≤ k) ≥ p."""
+        req = await calc.read(request, s.QuantilesRequest)
+        basis = await calc.basis(request, req.basis)
+        age, duration = calc.lives(req.lives, basis)
+        p = np.asarray(req.probabilities, dtype=float)
+        calc.check_size(age.size * p.size, "$.probabilities")
+        model = basis.model
+
+        def work():
+            return (
+                model.complete_quantiles(age, duration, p),
+                model.curtate_quantiles(age, duration, p),
+            )
+
+        complete, curtate = await calc.run(work, age.size * p.size)
+        results = [
+            s.QuantilesResult(age=a, duration=d, complete=c1, curtate=c2)
+            for a, d, c1, c2 in zip(
+                age.tolist(), duration.tolist(), _values(complete), _values(curtate)
+            )
+        ]
+        return s.QuantilesResponse(_reference(basis), __version__, results)
+
+    @post(
+        "/v1/life-table",
+        operation_id="lifeTable",
+        summary="A life table derived from the basis",
+        **common,
+    )
+    async def life_table(request: Request[Any, Any, Any]) -> Response[s.LifeTableResponse]:
+        """Columns age, l, d, q, e̊ (complete) and e (curtate) for one life aged `start_age`,
+        at ages start_age, start_age + 1, … up to end_age. Send `Accept: text/csv` for CSV.
+        """
+        req = await calc.read(request, s.LifeTableRequest)
+        basis = await calc.basis(request, req.basis)
+        rows = int(max(req.end_age - req.start_age, 0.0) + 1e-9) + 1
+        if rows > settings.max_durations:
+            raise bad_field(
+                "$.end_age",
+                f"a life table may have at most {settings.max_durations} rows "
+                f"(start_age {req.start_age} to end_age {req.end_age} gives {rows})",
+            )
+        model = basis.model
+        try:
+            table = await calc.run(
+                lambda: model.life_table(req.start_age, req.end_age, req.radix, req.duration),
+                rows * 10,
+            )
+        except DomainError as exc:
+            raise _life_table_problem(exc) from None
+        as_csv = (
+            request.accept.best_match(["application/json", "text/csv"], "application/json")
+            == "text/csv"
+        )
+        if as_csv:
+            return Response(
+                content=_csv(table),
+                media_type="text/csv",
+                headers={"X-Basis-Fingerprint": basis.fingerprint},
+            )
+        result = s.LifeTableResult(
+            start_age=req.start_age,
+            duration=req.duration,
+            age=table["age"].tolist(),
+            l=_values(table["l"]),
+            d=_values(table["d"]),
+            q=_values(table["q"]),
+            complete=_values(table["complete"]),
+            curtate=_values(table["curtate"]),
+        )
+        return Response(s.LifeTableResponse(_reference(basis), __version__, [result]))
+
+    return [survival, deferred_death, expectation, moments, quantiles, life_table]
+
+
+LIFE_TABLE_COLUMNS = ("age", "l", "d", "q", "complete", "curtate")
+
+_LIFE_FIELDS = {"lives[0].age": "start_age", "lives[0].duration": "duration"}
+
+
+def _life_table_problem(exc: DomainError) -> Problem:
+    """The life table's single life is given by start_age and duration: name those."""
+    field = _LIFE_FIELDS.get(exc.field, exc.field)
+    return domain_problem(DomainError(field, exc.message))
+
+
+def _csv(table: dict[str, np.ndarray]) -> bytes:
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(LIFE_TABLE_COLUMNS)
+    columns = [table[name].tolist() for name in LIFE_TABLE_COLUMNS]
+    for row in zip(*columns):
+        writer.writerow(
+            ["" if (v != v or v in (float("inf"), float("-inf"))) else repr(v) for v in row]
+        )
+    return out.getvalue().encode("utf-8")

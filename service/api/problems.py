@@ -1,0 +1,221 @@
+"""Errors as problem details (RFC 9457): the one place that picks status codes.
+
+Every error answer is ``application/problem+json`` with ``type``, ``title``, ``status``,
+``detail`` and, for bad input, ``errors``: ``[{"field": "$.basis.c", "message": "..."}]``.
+``type`` is a relative URI, ``/problems/<kind>``; ``GET /problems/<kind>`` explains it.
+"""
+
+from __future__ import annotations
+
+import logging
+from typing import Any
+
+import msgspec
+from litestar import Request, Response
+from litestar.exceptions import HTTPException
+from litestar.plugins.problem_details import ProblemDetailsException
+
+from service.bases.catalogue import CatalogueNotReadyError, UnknownBasisError
+from service.bases.validation import field_error
+from service.core.errors import DomainError
+
+PROBLEM_MEDIA_TYPE = "application/problem+json"
+
+log = logging.getLogger("service.errors")
+
+#: kind -> (status, title, explanation)
+PROBLEM_KINDS: dict[str, tuple[int, str, str]] = {
+    "invalid-json": (400, "Body is not JSON", "The request body could not be read as JSON."),
+    "invalid-request": (
+        400,
+        "Request does not fit the schema",
+        "A field is missing, has the wrong type, is outside its documented bounds, or is not "
+        "a field of this request. Each entry of `errors` names one.",
+    ),
+    "not-found": (404, "Not found", "There is nothing at this path."),
+    "unknown-basis": (
+        404,
+        "Unknown stored basis",
+        "No stored basis has this id. GET /v1/bases lists them.",
+    ),
+    "method-not-allowed": (
+        405,
+        "Method not allowed",
+        "This path does not answer this HTTP method.",
+    ),
+    "body-too-large": (
+        413,
+        "Body too large",
+        "The request body is larger than the service accepts (the max_body_bytes setting).",
+    ),
+    "unsupported-media-type": (
+        415,
+        "Body must be JSON",
+        "Calculation requests take a body of Content-Type application/json.",
+    ),
+    "outside-domain": (
+        422,
+        "Outside the domain",
+        "The request is well formed but impossible: a parameter outside its domain, an age "
+        "at or past the basis's limiting age, a table that does not close, or more lives or "
+        "durations than the service takes in one request.",
+    ),
+    "not-ready": (
+        503,
+        "Not ready",
+        "The service is still loading its stored bases; try again shortly.",
+    ),
+    "internal-error": (
+        500,
+        "Internal error",
+        "The service failed to answer. The request id in X-Request-ID identifies it in the "
+        "service's logs.",
+    ),
+    "http-error": (400, "Request not accepted", "The request could not be handled."),
+}
+
+
+class Problem(ProblemDetailsException):
+    """An error answer of one of the ``PROBLEM_KINDS``."""
+
+    def __init__(
+        self,
+        kind: str,
+        detail: str,
+        errors: list[tuple[str, str]] | None = None,
+        status: int | None = None,
+        headers: dict[str, str] | None = None,
+    ):
+        default_status, title, _ = PROBLEM_KINDS[kind]
+        extra = (
+            {"errors": [{"field": f, "message": m} for f, m in errors]} if errors else None
+        )
+        super().__init__(
+            detail=detail,
+            status_code=status or default_status,
+            headers=headers,
+            extra=extra,
+            type_=f"/problems/{kind}",
+            title=title,
+        )
+
+
+def bad_field(field: str, message: str, detail: str | None = None) -> Problem:
+    """A 422 for one field (a JSON path from ``$``)."""
+    return Problem("outside-domain", detail or f"{field}: {message}", [(field, message)])
+
+
+def domain_problem(error: DomainError, prefix: str = "") -> Problem:
+    """A core ``DomainError`` as a 422; ``prefix`` places its field (e.g. ``basis``)."""
+    field = error.within(prefix).field if prefix else error.field
+    path = "$." + field if field and not field.startswith("[") else "$" + field
+    return bad_field(path, error.message, error.message)
+
+
+# ---- msgspec decoding errors -> 400 ----------------------------------------------------------
+
+def from_validation_error(exc: msgspec.ValidationError) -> Problem:
+    field, message = field_error(str(exc))
+    return Problem("invalid-request", f"{field}: {message}", [(field, message)])
+
+
+def from_decode_error(exc: msgspec.DecodeError) -> Problem:
+    text = str(exc)
+    if text == "Input data was truncated":
+        text = "the body is empty or ends early"
+    return Problem("invalid-json", f"the body is not valid JSON: {text}", [("$", text)])
+
+
+# ---- rendering and exception handlers -------------------------------------------------------
+
+
+def render(problem: ProblemDetailsException) -> Response[Any]:
+    body: dict[str, Any] = {
+        "type": problem.type_ or "/problems/http-error",
+        "title": problem.title or "Error",
+        "status": problem.status_code,
+        "detail": problem.detail or problem.title or "",
+    }
+    extra = problem.extra
+    if isinstance(extra, dict) and extra.get("errors"):
+        body["errors"] = extra["errors"]
+    headers = dict(problem.headers or {})
+    headers["Cache-Control"] = "no-store"
+    return Response(
+        body, status_code=problem.status_code, media_type=PROBLEM_MEDIA_TYPE, headers=headers
+    )
+
+
+def handle_problem(request: Request, exc: ProblemDetailsException) -> Response[Any]:
+    return render(exc)
+
+
+def handle_http_exception(request: Request, exc: HTTPException) -> Response[Any]:
+    """Litestar's own HTTP errors (unknown path, wrong method, …) as problems."""
+    status = exc.status_code
+    headers = dict(exc.headers or {})
+    if status == 404:
+        problem = Problem("not-found", f"nothing at {request.url.path}", headers=headers)
+    elif status == 405:
+        problem = Problem(
+            "method-not-allowed",
+            f"{request.method} is not allowed at {request.url.path}",
+            headers=headers,
+        )
+    elif status == 413:
+        problem = Problem("body-too-large", "the request body is too large", headers=headers)
+    elif status == 415:
+        problem = Problem("unsupported-media-type", str(exc.detail), headers=headers)
+    elif status >= 500:
+        return handle_unexpected(request, exc)
+    else:
+        problem = Problem("http-error", str(exc.detail), status=status, headers=headers)
+    return render(problem)
+
+
+def handle_domain_error(request: Request, exc: DomainError) -> Response[Any]:
+    return render(domain_problem(exc))
+
+
+def handle_unknown_basis(request: Request, exc: UnknownBasisError) -> Response[Any]:
+    return render(
+        Problem(
+            "unknown-basis",
+            f"no stored basis has the id {exc.basis_id!r}; GET /v1/bases lists them",
+            [("$.basis", f"unknown stored basis id {exc.basis_id!r}")]
+            if request.method == "POST"
+            else None,
+        )
+    )
+
+
+def handle_not_ready(request: Request, exc: CatalogueNotReadyError) -> Response[Any]:
+    return render(Problem("not-ready", "the service is still loading its stored bases"))
+
+
+def handle_unexpected(request: Request, exc: Exception) -> Response[Any]:
+    """Anything else: a 500 that says nothing of the internals; the log has the details."""
+    request_id = request.scope.get("state", {}).get("request_id", "")
+    log.error(
+        "unexpected error answering %s %s (request id %s)",
+        request.method,
+        request.url.path,
+        request_id,
+        exc_info=exc,
+    )
+    return render(
+        Problem(
+            "internal-error",
+            f"the service failed to answer this request (request id {request_id})",
+        )
+    )
+
+
+EXCEPTION_HANDLERS = {
+    ProblemDetailsException: handle_problem,
+    HTTPException: handle_http_exception,
+    DomainError: handle_domain_error,
+    UnknownBasisError: handle_unknown_basis,
+    CatalogueNotReadyError: handle_not_ready,
+    Exception: handle_unexpected,
+}

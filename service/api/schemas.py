@@ -1,0 +1,350 @@
+"""The request and response bodies of the HTTP API, as msgspec Structs.
+
+The Basis tagged union itself lives in ``service.bases.definitions`` (the stored-basis loader
+needs it too); it is re-exported here. Constraints are ``Meta`` annotations, so they are
+checked while decoding and appear in the OpenAPI document. Limits that come from settings
+(most lives, most durations) are checked after decoding and answered with 422.
+
+Every number in an answer that may not exist (the force of mortality at or past a limiting
+age, say) is typed ``float | None``: the value is sent as ``null``. msgspec writes NaN and
+±Infinity as ``null`` too, so no answer can carry them.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Union
+
+import msgspec
+from msgspec import Meta
+
+from service.bases.definitions import BASIS_DESCRIPTION, BASIS_KINDS, Basis, BasisDefinition
+
+__all__ = ["Basis", "BasisDefinition"]
+
+NonNegative = Annotated[float, Meta(ge=0)]
+Positive = Annotated[float, Meta(gt=0)]
+Value = Union[float, None]
+Values = list[Value]
+
+StoredId = Annotated[
+    str,
+    Meta(min_length=1, max_length=200, description="the id of a stored basis (GET /v1/bases)"),
+]
+BasisField = Annotated[
+    Union[(StoredId, *BASIS_KINDS)],  # type: ignore[valid-type]
+    Meta(
+        description="The mortality basis: the id of a stored basis (a string), or an inline "
+        "basis (an object). " + BASIS_DESCRIPTION
+    ),
+]
+
+MAX_TERM = 10_000
+MAX_ORDER = 8
+MAX_PROBABILITIES = 100
+
+Term = Annotated[
+    int,
+    Meta(
+        ge=1,
+        le=MAX_TERM,
+        description="a whole number of years n: the quantities are then of min(T_x, n) and "
+        "min(K_x, n) (temporary); leave out for whole life",
+    ),
+]
+
+
+class Life(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+    """One life: its age and, for select bases, the years since selection."""
+
+    age: Annotated[float, Meta(ge=0, description="age in years, at least 0")]
+    duration: Annotated[
+        float,
+        Meta(
+            ge=0,
+            description="years since selection (only select bases use it), at least 0",
+        ),
+    ] = 0.0
+
+
+Lives = Annotated[
+    list[Life],
+    Meta(
+        min_length=1,
+        description="the lives, 1 to max_lives (a setting, default 10000); results follow "
+        "their order",
+    ),
+]
+
+
+def _durations(what: str) -> object:
+    return Annotated[
+        list[NonNegative],
+        Meta(
+            min_length=1,
+            description=f"{what}, each at least 0; 1 to max_durations (a setting, default 1000)",
+        ),
+    ]
+
+
+class SurvivalRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+    """Survival and death probabilities, force of mortality and density at durations t."""
+
+    basis: BasisField
+    lives: Lives
+    t: _durations("durations t in years")  # type: ignore[valid-type]
+
+
+class DeferredDeathRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+    """Deferred death probabilities u|ₜq_x = P(u < T_x ≤ u + t) for each deferral u."""
+
+    basis: BasisField
+    lives: Lives
+    deferral: _durations("deferral periods u in years")  # type: ignore[valid-type]
+    period: Annotated[
+        float, Meta(gt=0, description="the period t in years over which death is counted")
+    ] = 1.0
+
+
+class ExpectationRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+    """Complete and curtate expectations of life and their variances."""
+
+    basis: BasisField
+    lives: Lives
+    term: Union[Term, None] = None
+
+
+class MomentsRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+    """Raw moments E[T_x^k] and E[K_x^k] for the orders k asked for."""
+
+    basis: BasisField
+    lives: Lives
+    orders: Annotated[
+        list[Annotated[int, Meta(ge=1, le=MAX_ORDER)]],
+        Meta(
+            min_length=1,
+            max_length=MAX_ORDER,
+            extra_json_schema={"uniqueItems": True},
+            description=f"the orders k: 1 to {MAX_ORDER} distinct whole numbers from 1 to "
+            f"{MAX_ORDER}",
+        ),
+    ]
+    term: Union[Term, None] = None
+
+
+class QuantilesRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+    """Quantiles of T_x and K_x for the probabilities asked for."""
+
+    basis: BasisField
+    lives: Lives
+    probabilities: Annotated[
+        list[Annotated[float, Meta(gt=0, lt=1)]],
+        Meta(
+            min_length=1,
+            max_length=MAX_PROBABILITIES,
+            description=f"the probabilities p: 1 to {MAX_PROBABILITIES} numbers strictly "
+            "between 0 and 1",
+        ),
+    ]
+
+
+class LifeTableRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+    """A life table derived from the basis for one life, from start_age to end_age."""
+
+    basis: BasisField
+    start_age: Annotated[float, Meta(ge=0, description="the first age of the table")]
+    end_age: Annotated[
+        float,
+        Meta(
+            ge=0,
+            description="the last age: rows run at start_age, start_age + 1, … up to end_age "
+            "(at most max_durations rows)",
+        ),
+    ]
+    radix: Annotated[float, Meta(gt=0, description="l at start_age")] = 100_000.0
+    duration: Annotated[
+        float,
+        Meta(ge=0, description="years since selection of the life aged start_age (select bases)"),
+    ] = 0.0
+
+
+# ---- answers ---------------------------------------------------------------------------------
+
+
+class BasisReference(msgspec.Struct, frozen=True):
+    """Which basis answered: its stored id (null when sent inline) and its fingerprint."""
+
+    id: Union[str, None]
+    fingerprint: Annotated[
+        str,
+        Meta(
+            pattern="^sha256:[0-9a-f]{64}$",
+            description="SHA-256 of the basis definition's canonical JSON",
+        ),
+    ]
+
+
+class SurvivalResult(msgspec.Struct, frozen=True):
+    age: float
+    duration: float
+    survival: Annotated[Values, Meta(description="ₜp_x for each t")]
+    death: Annotated[Values, Meta(description="ₜq_x for each t")]
+    force: Annotated[Values, Meta(description="μ_{x+t} for each t; null where it does not exist")]
+    density: Annotated[Values, Meta(description="f_x(t) = ₜp_x μ_{x+t} for each t")]
+
+
+class DeferredDeathResult(msgspec.Struct, frozen=True):
+    age: float
+    duration: float
+    probability: Annotated[Values, Meta(description="u|ₜq_x for each deferral u")]
+
+
+class ExpectationResult(msgspec.Struct, frozen=True):
+    age: float
+    duration: float
+    complete: Annotated[Value, Meta(description="e̊_x, or e̊_{x:n} = E[min(T_x, n)]")]
+    curtate: Annotated[Value, Meta(description="e_x, or e_{x:n} = E[min(K_x, n)]")]
+    complete_variance: Annotated[Value, Meta(description="Var T_x or Var min(T_x, n)")]
+    curtate_variance: Annotated[Value, Meta(description="Var K_x or Var min(K_x, n)")]
+
+
+class MomentsResult(msgspec.Struct, frozen=True):
+    age: float
+    duration: float
+    complete: Annotated[Values, Meta(description="E[T_x^k] (or of min(T_x, n)) for each order")]
+    curtate: Annotated[Values, Meta(description="E[K_x^k] (or of min(K_x, n)) for each order")]
+
+
+class QuantilesResult(msgspec.Struct, frozen=True):
+    age: float
+    duration: float
+    complete: Annotated[Values, Meta(description="t with ₜq_x = p, for each p")]
+    curtate: Annotated[
+        Values, Meta(description="the least whole k with P(K_x ≤ k) ≥ p, for each p")
+    ]
+
+
+class LifeTableResult(msgspec.Struct, frozen=True):
+    start_age: float
+    duration: float
+    age: Annotated[list[float], Meta(description="ages start_age, start_age + 1, …")]
+    l: Annotated[Values, Meta(description="l_x, with l at start_age equal to the radix")]  # noqa: E741
+    d: Annotated[Values, Meta(description="d_x = l_x − l_{x+1}")]
+    q: Annotated[Values, Meta(description="q_x")]
+    complete: Annotated[Values, Meta(description="e̊_x")]
+    curtate: Annotated[Values, Meta(description="e_x")]
+
+
+ServiceVersion = Annotated[str, Meta(description="the version of the service that answered")]
+
+
+class SurvivalResponse(msgspec.Struct, frozen=True):
+    basis: BasisReference
+    service_version: ServiceVersion
+    results: list[SurvivalResult]
+
+
+class DeferredDeathResponse(msgspec.Struct, frozen=True):
+    basis: BasisReference
+    service_version: ServiceVersion
+    results: list[DeferredDeathResult]
+
+
+class ExpectationResponse(msgspec.Struct, frozen=True):
+    basis: BasisReference
+    service_version: ServiceVersion
+    results: list[ExpectationResult]
+
+
+class MomentsResponse(msgspec.Struct, frozen=True):
+    basis: BasisReference
+    service_version: ServiceVersion
+    results: list[MomentsResult]
+
+
+class QuantilesResponse(msgspec.Struct, frozen=True):
+    basis: BasisReference
+    service_version: ServiceVersion
+    results: list[QuantilesResult]
+
+
+class LifeTableResponse(msgspec.Struct, frozen=True):
+    basis: BasisReference
+    service_version: ServiceVersion
+    results: list[LifeTableResult]
+
+
+# ---- reading bases -------------------------------------------------------------------------
+
+
+class StoredBasisSummary(msgspec.Struct, frozen=True):
+    id: str
+    title: str
+    type: str
+    source: str
+    fingerprint: str
+
+
+class StoredBasesResponse(msgspec.Struct, frozen=True):
+    bases: list[StoredBasisSummary]
+
+
+class StoredBasisDetail(msgspec.Struct, frozen=True):
+    id: str
+    title: str
+    type: str
+    description: str
+    source: str
+    version: str
+    fingerprint: str
+    definition: Annotated[
+        Basis,
+        Meta(description="the definition in exactly the inline form: send it as `basis`"),
+    ]
+
+
+class LawParameter(msgspec.Struct, frozen=True):
+    name: str
+    domain: Annotated[str, Meta(description="the values allowed")]
+    description: str
+
+
+class LawDescription(msgspec.Struct, frozen=True):
+    type: str
+    definition: Annotated[str, Meta(description="a one-line definition")]
+    parameters: list[LawParameter]
+    rules: Annotated[
+        list[str], Meta(description="conditions tying several parameters together")
+    ]
+
+
+class LawsResponse(msgspec.Struct, frozen=True):
+    laws: list[LawDescription]
+
+
+# ---- operations and errors -------------------------------------------------------------------
+
+
+class HealthResponse(msgspec.Struct, frozen=True):
+    status: str
+
+
+class ReadyResponse(msgspec.Struct, frozen=True):
+    status: str
+    stored_bases: int
+
+
+class FieldProblem(msgspec.Struct, frozen=True):
+    field: Annotated[str, Meta(description="JSON path of the field, e.g. $.basis.c or $.lives[3].age")]
+    message: Annotated[str, Meta(description="what is wrong and what is allowed")]
+
+
+class ProblemDocument(msgspec.Struct, frozen=True, omit_defaults=True):
+    """An error (RFC 9457 problem details, media type application/problem+json)."""
+
+    type: str
+    title: str
+    status: int
+    detail: str
+    errors: Annotated[
+        list[FieldProblem], Meta(description="for bad input: each field at fault")
+    ] = []

@@ -1,0 +1,87 @@
+"""msgspec validation errors in plain words: (JSON path, message) for one field.
+
+Shared by the HTTP layer (400 answers) and the stored-basis loader (start-up errors), so a
+field that does not fit reads the same wherever it is reported.
+"""
+
+from __future__ import annotations
+
+import re
+
+import msgspec
+
+from .definitions import BASIS_KINDS
+
+_AT = re.compile(r"^(?P<message>.*?)(?: - at `(?P<path>\$[^`]*)`)?$", re.S)
+_BOUND = re.compile(r"^Expected `(?P<type>\w+)` (?P<op>>=|<=|>|<) (?P<bound>\S+)$")
+_LENGTH = re.compile(r"^Expected `(?P<type>\w+)` of length (?P<op>>=|<=) (?P<bound>\d+)$")
+_TYPE = re.compile(r"^Expected `(?P<expected>[^`]+)`, got `(?P<got>[^`]+)`$")
+_UNKNOWN = re.compile(r"^Object contains unknown field `(?P<name>[^`]*)`$")
+_MISSING = re.compile(r"^Object missing required field `(?P<name>[^`]*)`$")
+_INVALID_VALUE = re.compile(r"^Invalid (?:enum )?value (?P<value>.*)$")
+
+_OPS = {">": "greater than", ">=": "at least", "<": "less than", "<=": "at most"}
+_TYPE_WORDS = {
+    "float": "a number",
+    "int": "a whole number",
+    "str": "a string",
+    "array": "a list",
+    "object": "an object",
+    "bool": "true or false",
+    "null": "null",
+}
+_BASIS_TYPES = ", ".join(k.__struct_config__.tag for k in BASIS_KINDS)  # type: ignore[misc]
+_FRACTIONAL = "udd, constant-force, balducci"
+
+
+def _words(type_text: str) -> str:
+    parts = [p.strip() for p in type_text.split("|")]
+    return " or ".join(_TYPE_WORDS.get(p, p) for p in parts)
+
+
+def _child(path: str, name: str) -> str:
+    if re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", name):
+        return f"{path}.{name}"
+    return f"{path}[{msgspec.json.encode(name).decode()}]"
+
+
+def field_error(text: str) -> tuple[str, str]:
+    """(JSON path, message) for a msgspec ValidationError's text, in plain words."""
+    m = _AT.match(text)
+    message = m.group("message") if m else text
+    path = (m.group("path") if m else None) or "$"
+    if found := _UNKNOWN.match(message):
+        name = found.group("name")
+        return _child(path, name), f"unknown field {name!r}: not a field here"
+    if found := _MISSING.match(message):
+        name = found.group("name")
+        if name == "type" and (path == "$.basis" or path.endswith(".definition")):
+            return _child(path, name), f"required field is missing: one of {_BASIS_TYPES}"
+        return _child(path, name), "required field is missing"
+    if found := _BOUND.match(message):
+        what = _words(found.group("type"))
+        return path, f"must be {what} {_OPS[found.group('op')]} {found.group('bound')}"
+    if found := _LENGTH.match(message):
+        count = int(found.group("bound"))
+        op = "at least" if found.group("op") == ">=" else "at most"
+        noun = "character" if found.group("type") == "str" else "item"
+        return path, f"must hold {op} {count} {noun}{'' if count == 1 else 's'}"
+    if found := _TYPE.match(message):
+        expected, got = found.group("expected"), found.group("got")
+        if path == "$.basis" and "object" in expected:
+            expected = "str | object"
+            return path, (
+                f"must be the id of a stored basis (a string) or an inline basis (an "
+                f"object), got {_words(got)}"
+            )
+        return path, f"must be {_words(expected)}, got {_words(got)}"
+    if found := _INVALID_VALUE.match(message):
+        value = found.group("value")
+        if path.endswith(".type"):
+            return path, f"unknown basis type {value}; allowed: {_BASIS_TYPES}"
+        if path.endswith(".fractional_ages"):
+            return path, f"invalid value {value}; allowed: {_FRACTIONAL}"
+        return path, f"invalid value {value}"
+    if message == "Number out of range":
+        return path, "number out of range: must be a finite number"
+    return path, message
