@@ -179,12 +179,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         model = basis.model
 
         def work():
-            return (
-                model.survival(age, duration, t),
-                model.death(age, duration, t),
-                model.force(age, duration, t),
-                model.density(age, duration, t),
-            )
+            return model.survival_summary(age, duration, t)
 
         surv, death, force, density = await calc.run(work, age.size * t.size)
         results = [
@@ -229,12 +224,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         model, term = basis.model, req.term
 
         def work():
-            return (
-                model.complete_expectation(age, duration, term),
-                model.curtate_expectation(age, duration, term),
-                model.complete_variance(age, duration, term),
-                model.curtate_variance(age, duration, term),
-            )
+            return model.expectation_summary(age, duration, term)
 
         complete, curtate, complete_var, curtate_var = await calc.run(work, age.size)
         results = [

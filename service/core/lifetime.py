@@ -195,6 +195,29 @@ class LifetimeModel(ABC):
             out = np.exp(-h_u) * -np.expm1(-h_t)
         return np.where(np.isfinite(h_u), out, 0.0)
 
+    def survival_summary(self, age, duration, t):
+        """ₜp_x, ₜq_x, μ_{x+t} and f_x(t) from one evaluation of the cumulative hazard."""
+        h = self.cumulative_hazard(age, duration, t)
+        surv = np.exp(-h)
+        death = -np.expm1(-h)
+        mu = self.force(age, duration, t)
+        with np.errstate(invalid="ignore", over="ignore"):
+            dens = surv * mu
+        dens[surv == 0.0] = 0.0
+        dens[~np.isfinite(dens)] = np.nan
+        return surv, death, mu, dens
+
+    def expectation_summary(self, age, duration, term=None):
+        """(e̊, e, Var T, Var K), whole life or temporary, from the first two moments."""
+        complete = self.complete_moments(age, duration, _FIRST_TWO, term)
+        curtate = self.curtate_moments(age, duration, _FIRST_TWO, term)
+        return (
+            complete[:, 0],
+            curtate[:, 0],
+            np.maximum(complete[:, 1] - complete[:, 0] ** 2, 0.0),
+            np.maximum(curtate[:, 1] - curtate[:, 0] ** 2, 0.0),
+        )
+
     def complete_expectation(self, age, duration, term=None) -> np.ndarray:
         return self.complete_moments(age, duration, [1], term)[:, 0]
 
@@ -268,11 +291,22 @@ class LifetimeModel(ABC):
         }
 
 
+_FIRST_TWO = (1, 2)
+_ORDER_ARRAYS: dict[tuple, np.ndarray] = {}
+
+
 def _orders(orders: Sequence[int]) -> np.ndarray:
-    orders = np.asarray(list(orders), dtype=int)
-    if orders.size == 0 or orders.min() < 1 or orders.max() > MAX_ORDER:
-        raise DomainError("orders", f"orders must be whole numbers from 1 to {MAX_ORDER}")
-    return orders
+    """The orders as a (shared, read-only) integer array, checked to lie in 1..MAX_ORDER."""
+    key = tuple(orders)
+    arr = _ORDER_ARRAYS.get(key)
+    if arr is None:
+        if not key or not all(int(k) == k and 1 <= k <= MAX_ORDER for k in key):
+            raise DomainError("orders", f"orders must be whole numbers from 1 to {MAX_ORDER}")
+        arr = np.array(key, dtype=np.int64)
+        arr.flags.writeable = False
+        if len(_ORDER_ARRAYS) < 512:
+            _ORDER_ARRAYS[key] = arr
+    return arr
 
 
 def _term(term) -> int | None:
@@ -355,6 +389,25 @@ class YearGridModel(LifetimeModel):
         self.curtate_table = curt
 
     # ---- the hot paths ----------------------------------------------------------------------
+
+    def expectation_summary(self, age, duration, term=None):
+        """Lives at whole ages, whole life: four lookups in the per-basis tables."""
+        if term is None:
+            age = as_float_array(age)
+            duration = np.broadcast_to(as_float_array(duration), age.shape)
+            loc = self._locate(age, duration)
+            if not np.any(loc.frac > 0.0):
+                tail = self.tail_moments[loc.row, loc.index, :2]
+                curt = self.curtate_table[loc.row, loc.index, 1:3]
+                complete, second = tail[:, 0], 2.0 * tail[:, 1]
+                curtate, curtate_second = curt[:, 0], curt[:, 1]
+                return (
+                    complete,
+                    curtate,
+                    np.maximum(second - complete**2, 0.0),
+                    np.maximum(curtate_second - curtate**2, 0.0),
+                )
+        return super().expectation_summary(age, duration, term)
 
     def span_hazard(self, age, duration, t0, t1):
         age, duration, t0, t1 = np.broadcast_arrays(

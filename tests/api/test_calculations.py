@@ -98,11 +98,20 @@ def test_expectation(client, term):
     r = client.post("/v1/expectation", json=payload)
     assert r.status_code == 200
     a, d = np.array([40.0, 80.25]), np.zeros(2)
+    summary = MODEL.expectation_summary(a, d, term)
     for i, result in enumerate(r.json()["results"]):
-        assert result["complete"] == MODEL.complete_expectation(a, d, term)[i]
-        assert result["curtate"] == MODEL.curtate_expectation(a, d, term)[i]
-        assert result["complete_variance"] == MODEL.complete_variance(a, d, term)[i]
-        assert result["curtate_variance"] == MODEL.curtate_variance(a, d, term)[i]
+        got = [result[k] for k in ("complete", "curtate", "complete_variance", "curtate_variance")]
+        assert got == [float(column[i]) for column in summary]
+        # the one-call summary agrees with the separate core functions
+        assert got == pytest.approx(
+            [
+                MODEL.complete_expectation(a, d, term)[i],
+                MODEL.curtate_expectation(a, d, term)[i],
+                MODEL.complete_variance(a, d, term)[i],
+                MODEL.curtate_variance(a, d, term)[i],
+            ],
+            rel=1e-13,
+        )
         if term is not None:
             assert result["complete"] <= term
 

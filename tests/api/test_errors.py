@@ -249,7 +249,7 @@ def test_unexpected_failure_is_a_plain_500(client, monkeypatch, caplog, assert_p
     def broken(self, *args, **kwargs):
         raise RuntimeError("secret internal detail")
 
-    monkeypatch.setattr(LifetimeModel, "survival", broken)
+    monkeypatch.setattr(LifetimeModel, "survival_summary", broken)
     r = post_json(client, "/v1/survival", {"basis": "standard-ultimate", "lives": LIFE, "t": [1]})
     problem = assert_problem(r, 500, "internal-error")
     assert "secret" not in r.text and "RuntimeError" not in r.text and "Traceback" not in r.text
