@@ -277,8 +277,8 @@ class LifetimeModel(ABC):
         self.check_lives(np.array([start_age]), np.array([float(duration)]))
         surv = self.survival([start_age], [float(duration)], np.arange(n + 1, dtype=float))[0]
         l_col = radix * surv
-        d_col = radix * (surv[:-1] - surv[1:])
         q_col = self.death(ages, durations, [1.0])[:, 0]
+        d_col = l_col[:-1] * q_col  # d = l q, free of the rounding in l_x − l_{x+1}
         complete = self.complete_expectation(ages, durations)
         curtate = self.curtate_expectation(ages, durations)
         return {
