@@ -93,6 +93,8 @@ class LifetimeModel(ABC):
 
     def check_lives(self, age, duration) -> None:
         age = as_float_array(age)
+        if age.size == 1 and 0.0 <= float(age[0]) < self.max_age:  # the common single life
+            return
         bad = np.flatnonzero(~(age < self.max_age))
         if bad.size:
             i = int(bad[0])
@@ -395,6 +397,19 @@ class YearGridModel(LifetimeModel):
         if term is None:
             age = as_float_array(age)
             duration = np.broadcast_to(as_float_array(duration), age.shape)
+            if age.size == 1:  # one life: plain float arithmetic on the per-basis tables
+                loc = self._locate(age, duration)
+                r, j = int(loc.row[0]), int(loc.index[0])
+                if loc.frac[0] == 0.0:
+                    e0, m1 = self.tail_moments[r, j, :2].tolist()
+                    k1, k2 = self.curtate_table[r, j, 1:3].tolist()
+                    return (
+                        np.array([e0]),
+                        np.array([k1]),
+                        np.array([max(2.0 * m1 - e0 * e0, 0.0)]),
+                        np.array([max(k2 - k1 * k1, 0.0)]),
+                    )
+                return super().expectation_summary(age, duration, term)
             loc = self._locate(age, duration)
             if not np.any(loc.frac > 0.0):
                 tail = self.tail_moments[loc.row, loc.index, :2]
