@@ -12,15 +12,18 @@ import math
 from collections.abc import Sequence
 
 import numpy as np
-from scipy.special import factorial, gammaln
+from scipy.special import beta as beta_fn
+from scipy.special import betainc, factorial, gammaln
 from scipy.special import gamma as gamma_fn
 
 from .errors import ComputationLimitError, DomainError, fmt
 from .lifetime import (
+    CHUNK_ELEMENTS,
     GL_NODES,
     GL_WEIGHTS,
     MAX_HORIZON,
     N_MOM,
+    LifetimeModel,
     Located,
     YearGridModel,
     _orders,
@@ -33,6 +36,8 @@ LOG_SURVIVAL_FLOOR = 800.0
 #: lives may be valued while survival to the end of the grid stays below e^-TAIL_NEGLIGIBLE
 TAIL_NEGLIGIBLE = 46.0
 MAX_PANELS = 512
+#: the smallest constant force served (see ConstantForce)
+MIN_CONSTANT_FORCE = 1e-30
 
 
 def _positive(name: str, value: float, law: str) -> float:
@@ -103,7 +108,7 @@ class Law(YearGridModel):
         self.row_limit = np.array([self.max_age])
         # panels per year: enough that the hazard rises by at most 1/2 across a panel
         d_lam = np.diff(self.lam[0])
-        panels = np.clip(np.ceil(2.0 * np.nan_to_num(d_lam, posinf=MAX_PANELS)), 8, MAX_PANELS)
+        panels = np.clip(np.ceil(2.0 * np.nan_to_num(d_lam, posinf=MAX_PANELS)), 2, MAX_PANELS)
         self.year_panels = panels.astype(np.int64)
         years = np.arange(n_years)
         ym = np.zeros((n_years, N_MOM))
@@ -165,13 +170,21 @@ class Law(YearGridModel):
         u = lo[:, None] + (hi - lo)[:, None] * GL_NODES[None, :]
         w = ((hi - lo)[:, None] * GL_WEIGHTS[None, :]).ravel()
         u = u.ravel()
-        t = a[:, None] * u[None, :]
-        x = (start + f0)[:, None]
-        with np.errstate(over="ignore", invalid="ignore"):
-            s = np.exp(-self.hazard(x, t))
-        s = np.where(np.isfinite(s), s, 0.0)
-        powers = t[..., None] ** np.arange(N_MOM)
-        return a[:, None] * np.einsum("g,ng,ngi->ni", w, s, powers)
+        x_all = start + f0
+        out = np.empty(a.shape + (N_MOM,))
+        step = max(1, CHUNK_ELEMENTS // u.size)  # lives per block, to bound memory
+        for first in range(0, a.size, step):
+            sl = slice(first, first + step)
+            t = a[sl, None] * u[None, :]
+            with np.errstate(over="ignore", invalid="ignore"):
+                s = np.exp(-self.hazard(x_all[sl, None], t))
+            weighted = np.where(np.isfinite(s), s, 0.0) * w
+            # ∫ tⁱ S: multiply by t once per order instead of raising to powers
+            for i in range(N_MOM):
+                out[sl, i] = weighted.sum(axis=1)
+                if i + 1 < N_MOM:
+                    weighted *= t
+        return a[:, None] * out
 
     # ---- year-grid primitives ----------------------------------------------------------------
 
@@ -189,19 +202,22 @@ class Law(YearGridModel):
         return self.force_at(index + f)
 
     def _year_partial(self, row, index, f0, length):
+        """Each life with the panels of its own year of age: lives are grouped by panel count,
+        so a batch costs what its lives need, not what its oldest life needs."""
         index = np.asarray(index)
-        if self.singular_at_zero and np.any(index == 0):
-            out = np.empty(index.shape + (N_MOM,))
-            zero = index == 0
-            out[zero] = self._gl_moments(index[zero], f0[zero], length[zero], 0, graded=True)
-            if np.any(~zero):
-                nz = ~zero
-                out[nz] = self._gl_moments(
-                    index[nz], f0[nz], length[nz], int(self.year_panels[index[nz]].max())
-                )
-            return out
-        n_p = int(self.year_panels[np.minimum(index, self.year_panels.size - 1)].max()) if index.size else 8
-        return self._gl_moments(index, f0, length, n_p)
+        f0 = np.broadcast_to(np.asarray(f0, float), index.shape)
+        length = np.broadcast_to(np.asarray(length, float), index.shape)
+        panels = self.year_panels[np.clip(index, 0, self.year_panels.size - 1)]
+        graded = (index == 0) if self.singular_at_zero else np.zeros(index.shape, bool)
+        groups = np.where(graded, 0, panels)
+        first = int(groups.flat[0]) if index.size else 2
+        if index.size == 0 or np.all(groups == first):
+            return self._gl_moments(index, f0, length, first, graded=first == 0)
+        out = np.empty(index.shape + (N_MOM,))
+        for n_p in np.unique(groups):
+            sel = groups == n_p
+            out[sel] = self._gl_moments(index[sel], f0[sel], length[sel], int(n_p), graded=n_p == 0)
+        return out
 
     # ---- exact overrides of the generic hot paths ---------------------------------------------
 
@@ -236,6 +252,13 @@ class ConstantForce(Law):
 
     def __init__(self, mu: float):
         self.mu = _positive("mu", mu, self.kind)
+        if self.mu < MIN_CONSTANT_FORCE:
+            # E[T^k] = k!/μᵏ up to k = 8, and the curtate sums, overflow a float below this
+            raise ComputationLimitError(
+                "mu",
+                f"mu must be at least {MIN_CONSTANT_FORCE:g} for a {self.kind}: below it the "
+                f"moments of the lifetime (k!/mu^k) overflow (got {fmt(self.mu)})",
+            )
         self.limiting_age = math.inf
         self.max_age = math.inf
 
@@ -301,6 +324,10 @@ class ConstantForce(Law):
     def _compile(self):  # nothing to precompute: every quantity is closed form
         pass
 
+    def expectation_summary(self, age, duration, term=None):
+        """From the closed-form moments: this law has no year grid to look up."""
+        return LifetimeModel.expectation_summary(self, age, duration, term)
+
 
 def _stirling2(k: int) -> list[int]:
     """Stirling numbers of the second kind S(k, j), j = 0..k."""
@@ -353,8 +380,18 @@ class DeMoivre(Law):
         return super()._year_partial(row, index, f0, np.minimum(length, stop))
 
     def _gl_moments(self, start, f0, length, n_panels, graded=False):
-        stop = np.maximum(self.omega - (np.asarray(start, float) + f0), 0.0)
-        return super()._gl_moments(start, f0, np.minimum(length, stop), n_panels, graded)
+        """In closed form, not by panels (which converge slowly at the limiting age when α is
+        not whole): ∫₀ᵃ tⁱ (1 − t/m)^α dt = m^(i+1) B(i+1, α+1) I_{a/m}(i+1, α+1),
+        m = ω − (start + f0)."""
+        m = self.omega - (np.asarray(start, float) + f0)
+        a = np.minimum(np.asarray(length, float), np.maximum(m, 0.0))
+        i = np.arange(N_MOM, dtype=float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = np.clip(np.where(m > 0, a / m, 0.0), 0.0, 1.0)
+            out = (m[..., None] ** (i + 1.0)) * beta_fn(i + 1.0, self.alpha + 1.0) * betainc(
+                i + 1.0, self.alpha + 1.0, z[..., None]
+            )
+        return np.where((m > 0)[..., None] & (a > 0)[..., None], out, 0.0)
 
     def complete_moments(self, age, duration, orders, term=None):
         """T_x/(ω − x) is Beta(1, α): E[T^k] = (ω − x)^k k! Γ(α + 1)/Γ(α + k + 1).
@@ -467,7 +504,9 @@ class Weibull(Law):
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             # xᵐ((1 + t/x)ᵐ − 1) without cancellation for t ≪ x
             rel = x**m * np.expm1(m * np.log1p(t / np.where(x > 0, x, 1.0)))
-            h = (self.k / m) * np.where(x > 0, rel, t**m)
+            # for t ≥ x the direct difference loses at most a factor 2ᵐ/(2ᵐ − 1), and it stays
+            # finite for tiny x > 0, where xᵐ underflows and (1 + t/x)ᵐ overflows
+            h = (self.k / m) * np.where(x > t, rel, (x + t) ** m - x**m)
         return np.where(t <= 0, 0.0, h)
 
     def complete_moments(self, age, duration, orders, term=None):
@@ -519,7 +558,18 @@ class Perks(Law):
             big = ~np.isfinite(log_ratio)
             alt = np.log(self.D) + (x + t) * self.log_c - np.logaddexp(0.0, np.log(self.D) + x * self.log_c)
             log_ratio = np.where(big, alt, log_ratio)
-            h = self.A * t + (self.B - self.A * self.D) / (self.D * self.log_c) * log_ratio
+            # D ln c may underflow to 0 (tiny D, c near 1): there log(ratio)/(D ln c) is
+            # taken as log1p(z)/z · c^x/(1 + D c^x) · expm1(t ln c)/ln c, with z the argument
+            # of log1p above, which needs no division by D
+            z = w * np.expm1(t * self.log_c)
+            scaled = (
+                np.where(z > 0, np.log1p(z) / np.where(z > 0, z, 1.0), 1.0)
+                * (np.exp(x * self.log_c) / (1.0 + dcx))
+                * (np.expm1(t * self.log_c) / self.log_c)
+            )
+            plain = log_ratio / np.float64(self.D * self.log_c)
+            scaled = np.where(big | ~np.isfinite(scaled), plain, scaled)
+            h = self.A * t + (self.B - self.A * self.D) * scaled
         return np.where(t <= 0, 0.0, h)
 
 
@@ -630,21 +680,23 @@ class GompertzMakehamFamily(Law):
         self._exp_cum = np.array(cum)
         self._gl_u, self._gl_w = u, w
 
-    def _exp_integral(self, a, b):
-        """∫ₐᵇ exp(poly) for a ≤ b, short pieces by GL and whole years from the table."""
+    def _exp_integral(self, a, b, span=None):
+        """∫ₐᵇ exp(poly) for a ≤ b, short pieces by GL and whole years from the table.
+
+        ``span`` (= b − a, unrounded) is the length of a piece within one year, when given."""
         a = np.asarray(a, float)
         b = np.asarray(b, float)
         a, b = np.broadcast_arrays(a, b)
 
-        def piece(lo, hi):
-            length = np.maximum(hi - lo, 0.0)
+        def piece(lo, hi, length=None):
+            length = np.maximum(hi - lo, 0.0) if length is None else length
             y = lo[..., None] + length[..., None] * self._gl_u
             with np.errstate(over="ignore"):
                 return length * (np.exp(self._exponent(y)) @ self._gl_w)
 
         ja = np.ceil(a)
         jb = np.floor(b)
-        same = jb < ja  # within one year
+        same = (jb < ja) | (np.floor(a) == jb)  # within one year (a may be a whole age)
         table = self._exp_cum
         last = table.size - 1
         ia = np.minimum(ja, last).astype(np.int64)
@@ -653,7 +705,7 @@ class GompertzMakehamFamily(Law):
             whole = np.where(jb > last, np.inf, table[ib] - table[ia])
             out = np.where(
                 same,
-                piece(a, b),
+                piece(a, b, None if span is None else np.broadcast_to(span, a.shape)),
                 piece(a, np.minimum(ja, b)) + whole + piece(np.maximum(jb, a), b),
             )
         return out
@@ -665,15 +717,15 @@ class GompertzMakehamFamily(Law):
         nb = self.beta.size
         with np.errstate(over="ignore", invalid="ignore"):
             if nb == 1:
-                h = h + math.exp(self.beta[0]) * t
+                h = h + np.exp(self.beta[0]) * t  # inf, not OverflowError, for a huge β₀
             elif nb == 2:
                 b0, b1 = self.beta
                 if b1 == 0.0:
-                    h = h + math.exp(b0) * t
+                    h = h + np.exp(b0) * t
                 else:
                     h = h + np.exp(b0 + b1 * x) * np.expm1(b1 * t) / b1
             elif nb >= 3:
-                h = h + self._exp_integral(x, x + t)
+                h = h + self._exp_integral(x, x + t, span=t)
         return np.where(t <= 0, 0.0, h)
 
     def _check_positive(self):

@@ -341,6 +341,10 @@ class YearGridModel(LifetimeModel):
     def _year_hazard(self, row, index, f0, f1) -> np.ndarray:
         """−log(S_j(f1)/S_j(f0)) within the year of whole age j = row_start + index."""
 
+    def _year_span_hazard(self, row, index, f0, dt) -> np.ndarray:
+        """−log(S_j(f0 + dt)/S_j(f0)) within one year; override to use dt without rounding."""
+        return self._year_hazard(row, index, f0, f0 + dt)
+
     @abstractmethod
     def _year_partial(self, row, index, f0, length) -> np.ndarray:
         """∫₀^a tⁱ S_j(f0 + t)/S_j(f0) dt for i = 0..N_MOM-1, a = length ≤ 1 − f0: (N, N_MOM)."""
@@ -438,9 +442,18 @@ class YearGridModel(LifetimeModel):
         j0c = np.minimum(j0, n_years - 1)
         j1c = np.minimum(j1, n_years - 1)
         with np.errstate(invalid="ignore", over="ignore"):
-            same = self._year_hazard(r, j0c, f0, np.where(j1 == j0, f1, 1.0))
+            # within one year, the span is passed as t1 − t0 so that a tiny span keeps its digits
+            same = np.where(
+                j1 == j0,
+                self._year_span_hazard(r, j0c, f0, t1 - t0),
+                self._year_hazard(r, j0c, f0, np.ones_like(f0)),
+            )
             first_end = np.minimum(j0 + 1, n_years)
-            middle = self.lam[r, np.minimum(j1, n_years)] - self.lam[r, first_end]
+            middle = np.where(
+                np.minimum(j1, n_years) > first_end,
+                self.lam[r, np.minimum(j1, n_years)] - self.lam[r, first_end],
+                0.0,
+            )  # no whole years between: 0, not inf − inf at a closing year
             last = self._year_hazard(r, j1c, np.zeros_like(f1), f1)
             out = np.where(j1 == j0, same, same + np.where(j1 > j0 + 0, middle + last, 0.0))
         out = np.where(beyond & ~((j1 == n_years) & (f1 == 0.0)), np.inf, out)
@@ -512,7 +525,8 @@ class YearGridModel(LifetimeModel):
             h_first = self._year_hazard(r, jc, f, np.ones_like(f))
         log_s = -h_first  # log survival to the start of the next whole year
         step = max(1, CHUNK_ELEMENTS // max(n_lives * n_mom, 1))
-        m_all = np.arange(1, term + 1)
+        # years past the end of the grid add nothing (no survival there): stop at the grid
+        m_all = np.arange(1, max(min(term, n_years - int(j.min(initial=0))), 0) + 1)
         for start in range(0, m_all.size, step):
             m = m_all[start : start + step]  # whole years j + m, starting at t = first_len + m - 1
             jm = j[:, None] + m[None, :]

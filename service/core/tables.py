@@ -112,10 +112,10 @@ def balducci_partial(q, f0, length, n_mom=N_MOM):
     return _poly_scaled(a, n_mom) * _reciprocal_moments_unit(rho, n_mom)
 
 
-def year_hazard(assumption, q, f0, f1):
-    """−log(ₛ₁p_j / ₛ₀p_j) for f0 ≤ f1 within the year."""
+def year_hazard(assumption, q, f0, f1, dt=None):
+    """−log(ₛ₁p_j / ₛ₀p_j) for f0 ≤ f1 within the year (or over [f0, f0 + dt] given dt)."""
     q = np.asarray(q, float)
-    dt = np.asarray(f1, float) - f0
+    dt = np.asarray(f1, float) - f0 if dt is None else np.asarray(dt, float)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         if assumption == "udd":
             h = -np.log1p(-q * dt / (1.0 - q * f0))
@@ -244,6 +244,9 @@ class TableSet(YearGridModel):
     # within-year primitives
     def _year_hazard(self, row, index, f0, f1):
         return year_hazard(self.assumption, self.q[row, index], f0, f1)
+
+    def _year_span_hazard(self, row, index, f0, dt):
+        return year_hazard(self.assumption, self.q[row, index], f0, None, dt=dt)
 
     def _year_partial(self, row, index, f0, length):
         return self._partial(self.q[row, index], f0, length)
