@@ -80,6 +80,24 @@ def domain_text(info: msgspec.inspect.Type) -> str:
         return _number_domain(info, whole=True)
     if isinstance(info, msgspec.inspect.LiteralType):
         return "one of " + ", ".join(str(v) for v in info.values)
+    if isinstance(info, msgspec.inspect.UnionType):
+        words = []
+        for member in info.types:
+            inner = _unwrap(member)[0]
+            if isinstance(inner, msgspec.inspect.NoneType):
+                continue
+            if isinstance(inner, msgspec.inspect.StrType):
+                words.append("the id of a stored basis")
+            elif isinstance(inner, msgspec.inspect.StructType):
+                tag = inner.cls.__struct_config__.tag
+                words.append("an inline basis" if tag else f"an object ({inner.cls.__name__})")
+            else:
+                words.append(domain_text(inner))
+        words = list(dict.fromkeys(words))
+        optional = any(isinstance(m, msgspec.inspect.NoneType) for m in info.types)
+        return " or ".join(words) + ("; optional" if optional else "")
+    if isinstance(info, msgspec.inspect.StructType):
+        return f"an object ({info.cls.__name__})"
     if isinstance(info, msgspec.inspect.ListType):
         low = info.min_length or 0
         high = info.max_length
@@ -96,6 +114,16 @@ def describe_laws() -> s.LawsResponse:
         parameters = []
         for field in info.fields:
             field_type, description = _unwrap(field.type)
+            if not description and isinstance(field_type, msgspec.inspect.UnionType):
+                for member in field_type.types:
+                    description = description or _unwrap(member)[1]
+            if not description and isinstance(field_type, msgspec.inspect.StructType):
+                description = (field_type.cls.__doc__ or "").strip().splitlines()[0]
+            if not description and isinstance(field_type, msgspec.inspect.UnionType):
+                for member in field_type.types:
+                    inner = _unwrap(member)[0]
+                    if isinstance(inner, msgspec.inspect.StructType) and not inner.cls.__struct_config__.tag:
+                        description = (inner.cls.__doc__ or "").strip().splitlines()[0]
             parameters.append(
                 s.LawParameter(
                     name=field.encode_name,

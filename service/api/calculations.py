@@ -31,6 +31,7 @@ from service.version import __version__
 
 from . import schemas as s
 from .body import decode, read_body
+from .lives import several_lives
 from .problems import PROBLEM_MEDIA_TYPE, Problem, bad_field, domain_problem
 
 T = TypeVar("T")
@@ -123,7 +124,13 @@ class Calculations:
                 "$.lives",
                 f"at most {self.settings.max_lives} lives in one request (got {n})",
             )
-        if n == 1:
+        members = getattr(basis.model, "n_members", 1)
+        if members > 1 or any(
+            life.age is None or life.ages is not None or life.durations is not None
+            for life in lives
+        ):
+            age, duration = several_lives(lives, members)
+        elif n == 1:
             age = np.array([lives[0].age])
             duration = np.array([lives[0].duration])
         else:
@@ -157,6 +164,13 @@ class Calculations:
         return work()
 
 
+def _echo(age: Any, duration: Any) -> dict[str, Any]:
+    """A result's echo of its life: age and duration, or ages and durations (several lives)."""
+    if isinstance(age, list):
+        return {"ages": age, "durations": duration}
+    return {"age": age, "duration": duration}
+
+
 def _reference(basis: ResolvedBasis) -> s.BasisReference:
     return s.BasisReference(id=basis.id, fingerprint=basis.fingerprint)
 
@@ -183,7 +197,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
 
         surv, death, force, density = await calc.run(work, age.size * t.size)
         results = [
-            s.SurvivalResult(age=a, duration=d, survival=p, death=q, force=f, density=g)
+            s.SurvivalResult(**_echo(a, d), survival=p, death=q, force=f, density=g)
             for a, d, p, q, f, g in zip(
                 age.tolist(),
                 duration.tolist(),
@@ -210,7 +224,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
             lambda: model.deferred_death(age, duration, u, period), age.size * u.size
         )
         results = [
-            s.DeferredDeathResult(age=a, duration=d, probability=p)
+            s.DeferredDeathResult(**_echo(a, d), probability=p)
             for a, d, p in zip(age.tolist(), duration.tolist(), _values(values))
         ]
         return s.DeferredDeathResponse(_reference(basis), __version__, results)
@@ -229,8 +243,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         complete, curtate, complete_var, curtate_var = await calc.run(work, age.size)
         results = [
             s.ExpectationResult(
-                age=a,
-                duration=d,
+                **_echo(a, d),
                 complete=e1,
                 curtate=e2,
                 complete_variance=v1,
@@ -271,7 +284,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
 
         complete, curtate = await calc.run(work, age.size * len(orders))
         results = [
-            s.MomentsResult(age=a, duration=d, complete=c1, curtate=c2)
+            s.MomentsResult(**_echo(a, d), complete=c1, curtate=c2)
             for a, d, c1, c2 in zip(
                 age.tolist(), duration.tolist(), _values(complete), _values(curtate)
             )
@@ -296,7 +309,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
 
         complete, curtate = await calc.run(work, age.size * p.size)
         results = [
-            s.QuantilesResult(age=a, duration=d, complete=c1, curtate=c2)
+            s.QuantilesResult(**_echo(a, d), complete=c1, curtate=c2)
             for a, d, c1, c2 in zip(
                 age.tolist(), duration.tolist(), _values(complete), _values(curtate)
             )

@@ -54,9 +54,10 @@ Term = Annotated[
 
 
 class Life(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
-    """One life: its age and, for select bases, the years since selection."""
+    """One life: its age and, for select bases, the years since selection. For a
+    joint-life or last-survivor basis, `ages` (one per member) instead of `age`."""
 
-    age: Annotated[float, Meta(ge=0, description="age in years, at least 0")]
+    age: Union[Annotated[float, Meta(ge=0, description="age in years, at least 0")], None] = None
     duration: Annotated[
         float,
         Meta(
@@ -64,6 +65,29 @@ class Life(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
             description="years since selection (only select bases use it), at least 0",
         ),
     ] = 0.0
+    ages: Union[
+        Annotated[
+            list[NonNegative],
+            Meta(
+                min_length=2,
+                max_length=8,
+                description="for a joint-life or last-survivor basis (instead of age): the "
+                "age of each member, in the order of the basis's members",
+            ),
+        ],
+        None,
+    ] = None
+    durations: Union[
+        Annotated[
+            list[NonNegative],
+            Meta(
+                min_length=2,
+                max_length=8,
+                description="with ages: years since selection of each member (default 0)",
+            ),
+        ],
+        None,
+    ] = None
 
 
 Lives = Annotated[
@@ -183,40 +207,58 @@ class BasisReference(msgspec.Struct, frozen=True):
     ]
 
 
-class SurvivalResult(msgspec.Struct, frozen=True):
-    age: float
-    duration: float
+AgeEcho = Annotated[Union[float, None], Meta(description="the life's age (single-life bases)")]
+DurationEcho = Annotated[Union[float, None], Meta(description="the life's duration (single-life bases)")]
+AgesEcho = Annotated[
+    Union[list[float], None],
+    Meta(description="for a joint-life or last-survivor basis: each member's age (duration)"),
+]
+
+
+class SurvivalResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
+    age: AgeEcho = None
+    duration: DurationEcho = None
+    ages: AgesEcho = None
+    durations: AgesEcho = None
     survival: Annotated[Values, Meta(description="ₜp_x for each t")]
     death: Annotated[Values, Meta(description="ₜq_x for each t")]
     force: Annotated[Values, Meta(description="μ_{x+t} for each t; null where it does not exist")]
     density: Annotated[Values, Meta(description="f_x(t) = ₜp_x μ_{x+t} for each t")]
 
 
-class DeferredDeathResult(msgspec.Struct, frozen=True):
-    age: float
-    duration: float
+class DeferredDeathResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
+    age: AgeEcho = None
+    duration: DurationEcho = None
+    ages: AgesEcho = None
+    durations: AgesEcho = None
     probability: Annotated[Values, Meta(description="u|ₜq_x for each deferral u")]
 
 
-class ExpectationResult(msgspec.Struct, frozen=True):
-    age: float
-    duration: float
+class ExpectationResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
+    age: AgeEcho = None
+    duration: DurationEcho = None
+    ages: AgesEcho = None
+    durations: AgesEcho = None
     complete: Annotated[Value, Meta(description="e̊_x, or e̊_{x:n} = E[min(T_x, n)]")]
     curtate: Annotated[Value, Meta(description="e_x, or e_{x:n} = E[min(K_x, n)]")]
     complete_variance: Annotated[Value, Meta(description="Var T_x or Var min(T_x, n)")]
     curtate_variance: Annotated[Value, Meta(description="Var K_x or Var min(K_x, n)")]
 
 
-class MomentsResult(msgspec.Struct, frozen=True):
-    age: float
-    duration: float
+class MomentsResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
+    age: AgeEcho = None
+    duration: DurationEcho = None
+    ages: AgesEcho = None
+    durations: AgesEcho = None
     complete: Annotated[Values, Meta(description="E[T_x^k] (or of min(T_x, n)) for each order")]
     curtate: Annotated[Values, Meta(description="E[K_x^k] (or of min(K_x, n)) for each order")]
 
 
-class QuantilesResult(msgspec.Struct, frozen=True):
-    age: float
-    duration: float
+class QuantilesResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
+    age: AgeEcho = None
+    duration: DurationEcho = None
+    ages: AgesEcho = None
+    durations: AgesEcho = None
     complete: Annotated[Values, Meta(description="t with ₜq_x = p, for each p")]
     curtate: Annotated[
         Values, Meta(description="the least whole k with P(K_x ≤ k) ≥ p, for each p")

@@ -232,9 +232,9 @@ def _allowed_rate_fields(definition: dict) -> tuple[str, ...]:
     return ()
 
 
-def compile_stored(stored: StoredBasisFile, where: str) -> StoredBasis:
+def compile_stored(stored: StoredBasisFile, where: str, resolve=None, expand=None) -> StoredBasis:
     try:
-        model = build_model(stored.definition)
+        model = build_model(stored.definition, resolve)
     except DomainError as exc:
         field = exc.within("definition").field
         raise BasisFileError(where, "$." + field, exc.message) from None
@@ -245,7 +245,7 @@ def compile_stored(stored: StoredBasisFile, where: str) -> StoredBasis:
         source=stored.source,
         version=stored.version,
         definition=stored.definition,
-        fingerprint=fingerprint(stored.definition),
+        fingerprint=fingerprint(stored.definition, expand),
         model=model,
     )
 
@@ -254,10 +254,33 @@ def load_folder(folder: Path) -> list[StoredBasis]:
     """Every stored basis of ``folder``, compiled, sorted by id; raises ``BasisFileError``."""
     if not folder.is_dir():
         raise BasisFileError(str(folder.name or folder), "", "the bases folder does not exist")
+    files = {path.stem: (read_basis_file(path), path.name) for path in sorted(folder.glob("*.json"))}
     bases: dict[str, StoredBasis] = {}
-    for path in sorted(folder.glob("*.json")):
-        basis = compile_stored(read_basis_file(path), path.name)
-        bases[basis.id] = basis  # ids equal file names, so they are unique
+    in_progress: list[str] = []
+
+    def compiled(basis_id: str) -> StoredBasis:
+        # a stored transform may name other stored bases: compile those first
+        if basis_id not in bases:
+            stored, where = files[basis_id]
+            in_progress.append(basis_id)
+            bases[basis_id] = compile_stored(stored, where, nested, definition_of)
+            in_progress.pop()
+        return bases[basis_id]
+
+    def nested(reference: BasisDefinition | str) -> LifetimeModel:
+        if not isinstance(reference, str):
+            return build_model(reference, nested)
+        if reference not in files:
+            raise DomainError("", f"names no stored basis: {reference!r}")
+        if reference in in_progress:
+            raise DomainError("", f"stored bases name each other in a cycle through {reference!r}")
+        return compiled(reference).model
+
+    def definition_of(reference: str) -> BasisDefinition:
+        return compiled(reference).definition
+
+    for basis_id in files:  # ids equal file names, so they are unique
+        compiled(basis_id)
     return [bases[k] for k in sorted(bases)]
 
 
@@ -318,7 +341,7 @@ class Catalogue:
             stored = self.get(basis)
             return ResolvedBasis(stored.id, stored.fingerprint, stored.model)
         self._check_ready()
-        fp = fingerprint(basis)
+        fp = fingerprint(basis, self._definition_of)
         stored = self._by_fingerprint.get(fp)
         if stored is not None:
             self.cache.count_hit()
@@ -344,6 +367,9 @@ class Catalogue:
             return found
         assert not isinstance(basis, str)
         return self.compile_inline(basis, found)
+
+    def _definition_of(self, basis_id: str) -> BasisDefinition:
+        return self.get(basis_id).definition
 
     def _resolve_nested(self, basis: str | BasisDefinition) -> LifetimeModel:
         return self.resolve(basis).model

@@ -182,6 +182,90 @@ class SelectTable(BasisDefinition, tag="select-table"):
     fractional_ages: FractionalAges
 
 
+#: Deepest nesting of transforms (a basis inside a basis inside …).
+MAX_NESTING = 8
+#: Most members of a status of several lives.
+MAX_MEMBERS = 8
+
+#: A nested basis: an inline basis or the id of a stored one.
+NestedBasis = Annotated[
+    Union["StoredReference", "Basis"],
+    Meta(description="the basis this one is built on: an inline basis (an object) or the id "
+         "of a stored basis (a string)"),
+]
+StoredReference = Annotated[
+    str,
+    Meta(min_length=1, max_length=200, description="the id of a stored basis (GET /v1/bases)"),
+]
+Years = Annotated[float, Meta(gt=0, le=1000)]
+ImprovementRate = Annotated[float, Meta(gt=-1, lt=1)]
+CalendarYear = Annotated[int, Meta(ge=1000, le=9999)]
+
+
+class Adjusted(BasisDefinition, tag="adjusted"):
+    """A rated basis: age shift, then multipliers (q, then force), then additions (q, then force)."""
+
+    base: NestedBasis
+    age_shift: Union[described(AnyNumber, "years added to the age: the life aged x is valued at x + s (negative for a set-back)"), None] = None  # type: ignore[valid-type]
+    q_multiplier: Union[described(NonNegative, "q' = min(1, m q) at each whole age; tables only"), None] = None  # type: ignore[valid-type]
+    force_multiplier: Union[described(NonNegative, "μ' = m μ, so ₜp' = (ₜp)^m; any basis"), None] = None  # type: ignore[valid-type]
+    extra_q: Union[described(Rate, "q' = min(1, q + e) at each whole age; tables only"), None] = None  # type: ignore[valid-type]
+    extra_q_years: Union[described(Years, "years of age the extra_q applies to, the year the life is in first (all when absent)"), None] = None  # type: ignore[valid-type]
+    extra_force: Union[described(AnyNumber, "μ' = μ + δ (negative allowed while μ' stays ≥ 0)"), None] = None  # type: ignore[valid-type]
+    extra_force_years: Union[described(Years, "years after the life's age the extra_force applies to (all when absent)"), None] = None  # type: ignore[valid-type]
+
+
+class RatesByAge(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=True):
+    """Improvement rates by age alone."""
+
+    start_age: described(WholeAge, "the age of the first rate; younger ages take the first, older the last")  # type: ignore[valid-type]
+    values: Annotated[list[ImprovementRate], Meta(min_length=1, max_length=MAX_TABLE_RATES, description="yearly improvement rates r by whole age")]
+
+
+class RatesByYear(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=True):
+    """Improvement rates by age (rows) and calendar year (columns)."""
+
+    start_age: described(WholeAge, "the age of the first row; younger ages take the first row, older the last")  # type: ignore[valid-type]
+    start_year: described(CalendarYear, "the calendar year of the first column; at most base_year + 1")  # type: ignore[valid-type]
+    grid: Annotated[
+        list[Annotated[list[ImprovementRate], Meta(min_length=1, max_length=200)]],
+        Meta(min_length=1, max_length=MAX_TABLE_RATES, description="one row per whole age, one column per calendar year, all rows of one length; years after the last column take the last column"),
+    ]
+
+
+class Improved(BasisDefinition, tag="improved"):
+    """Generational mortality improvement: q_{x+k} × Π_{y=base_year+1}^{valuation_year+k} (1 − r)."""
+
+    base: NestedBasis
+    base_year: described(CalendarYear, "the calendar year of the base table's rates")  # type: ignore[valid-type]
+    valuation_year: described(CalendarYear, "the calendar year in which the lives have the ages given (≥ base_year)")  # type: ignore[valid-type]
+    rates: Union[RatesByAge, None] = None
+    rates_by_year: Union[RatesByYear, None] = None
+
+
+Members = Annotated[
+    list[NestedBasis],
+    Meta(min_length=2, max_length=MAX_MEMBERS, description=f"2 to {MAX_MEMBERS} single-life bases, one per member; lives give one age per member in `ages`"),
+]
+CommonShock = Annotated[
+    float, Meta(ge=0, description="λ: every member's survival is multiplied by e^(−λt) (common shock); 0 for independent lives")
+]
+
+
+class JointLife(BasisDefinition, tag="joint-life"):
+    """Joint-life status (until the first death): ₜp = e^(−λt) Π ₜp of each member."""
+
+    members: Members
+    common_shock_force: CommonShock = 0.0
+
+
+class LastSurvivor(BasisDefinition, tag="last-survivor"):
+    """Last-survivor status (until the last death): ₜp = e^(−λt) (1 − Π ₜq of each member)."""
+
+    members: Members
+    common_shock_force: CommonShock = 0.0
+
+
 #: Every inline kind, in the order they are documented.
 BASIS_KINDS: tuple[type[BasisDefinition], ...] = (
     ConstantForce,
@@ -195,6 +279,10 @@ BASIS_KINDS: tuple[type[BasisDefinition], ...] = (
     GompertzMakehamFamily,
     Table,
     SelectTable,
+    Adjusted,
+    Improved,
+    JointLife,
+    LastSurvivor,
 )
 
 #: The union as a type (decoded by msgspec using the "type" tag).
@@ -212,15 +300,44 @@ CROSS_FIELD_RULES: dict[str, tuple[str, ...]] = {
         "the ultimate rates run at least to the last selection age + n",
         "the last rate of ultimate is 1 and no earlier one is, so the table closes",
     ),
+    "adjusted": (
+        "at least one of age_shift, q_multiplier, force_multiplier, extra_q, extra_force",
+        "order of application: 1. age_shift (the life aged x is valued at x + s); "
+        "2. q_multiplier; 3. force_multiplier; 4. extra_q; 5. extra_force",
+        "q_multiplier and extra_q need a table as base; extra_q cannot follow "
+        "force_multiplier in one rating (nest two adjusted bases)",
+        "extra_q_years counts years of age: the year the life is in is the first",
+        "extra_force keeps the force at least 0 at every age of the base",
+        "force_multiplier 0 needs an extra_force",
+        f"nesting depth at most {MAX_NESTING}",
+    ),
+    "improved": (
+        "exactly one of rates and rates_by_year",
+        "base is a single life table (type table, or a rating that keeps it a table)",
+        "valuation_year ≥ base_year; rates_by_year.start_year ≤ base_year + 1",
+        "every row of rates_by_year.grid has the same length",
+        "a life aged x in valuation_year uses the cohort of whole age floor(x)",
+    ),
+    "joint-life": (
+        "members are single-life bases; each life gives ages (one per member), not age",
+        "λ = common_shock_force ≥ 0",
+    ),
+    "last-survivor": (
+        "members are single-life bases; each life gives ages (one per member), not age",
+        "λ = common_shock_force ≥ 0",
+    ),
 }
 
 BASIS_DESCRIPTION = (
     "An inline mortality basis, chosen by its `type`: a law of mortality given by its "
     "parameters (constant-force, de-moivre, generalised-de-moivre, gompertz, makeham, weibull, "
-    "perks, siler, gompertz-makeham-family) or a table of rates (table, select-table). "
+    "perks, siler, gompertz-makeham-family), a table of rates (table, select-table), or a "
+    "transform of other bases (adjusted: ratings; improved: generational mortality "
+    "improvement; joint-life and last-survivor: statuses of several lives, whose lives give "
+    "`ages`, one per member). A transform's `base` or `members` are inline bases or ids of "
+    "stored bases, nested at most 8 deep. "
     "Parameter names are the published ones. GET /v1/laws lists every type with its "
-    "parameters, their domains and a one-line definition. Later versions add more types "
-    "(basis transforms such as ratings, improvement and several lives) to this union."
+    "parameters, their domains and a one-line definition."
 )
 
 

@@ -12,12 +12,20 @@ is present, defaults included, and unknown fields are impossible) and encoded by
 
 So a definition gets the same fingerprint however a client spells its numbers, and a stored
 basis and the same definition sent inline have the same fingerprint.
+
+A basis built on other bases (a rating, an improvement, several lives) may name a stored basis
+by its id. Its canonical JSON puts the stored basis's own definition in place of the id, so the
+fingerprint records every rate and parameter the answer depends on: it changes when a stored
+basis it names changes, and a definition naming a stored basis has the same fingerprint as the
+same definition written out in full.
 """
 
 from __future__ import annotations
 
 import hashlib
 import re
+from collections.abc import Callable
+from typing import Any
 
 import msgspec
 
@@ -28,13 +36,46 @@ _ENCODER = msgspec.json.Encoder(order="sorted")
 _NEGATIVE_ZERO = re.compile(rb"(?<=[:,\[])-0\.0(?=[,\]}])")
 
 
-def canonical_json(definition: BasisDefinition) -> bytes:
-    """The canonical JSON bytes of a definition (see the module docstring)."""
-    encoded = _ENCODER.encode(definition)
+#: the fields through which a definition names other bases
+_NESTED_FIELDS = ("base", "members")
+
+Expand = Callable[[str], BasisDefinition]
+
+
+def _expanded(value: Any, expand: Expand) -> Any:
+    """Builtins of a definition with every stored id of a nested basis replaced by the stored
+    basis's own definition (itself expanded)."""
+    if isinstance(value, dict):
+        out = {}
+        for key, item in value.items():
+            if key in _NESTED_FIELDS:
+                items = item if isinstance(item, list) else [item]
+                items = [
+                    _expanded(msgspec.to_builtins(expand(x)), expand) if isinstance(x, str)
+                    else _expanded(x, expand)
+                    for x in items
+                ]
+                out[key] = items if isinstance(item, list) else items[0]
+            else:
+                out[key] = item
+        return out
+    return value
+
+
+def canonical_json(definition: BasisDefinition, expand: Expand | None = None) -> bytes:
+    """The canonical JSON bytes of a definition (see the module docstring).
+
+    ``expand`` gives the definition of a stored basis by id; it is needed only for
+    definitions that name stored bases.
+    """
+    if expand is not None and any(getattr(definition, f, None) is not None for f in _NESTED_FIELDS):
+        encoded = _ENCODER.encode(_expanded(msgspec.to_builtins(definition), expand))
+    else:
+        encoded = _ENCODER.encode(definition)
     if b"-0.0" in encoded:
         encoded = _NEGATIVE_ZERO.sub(b"0.0", encoded)
     return encoded
 
 
-def fingerprint(definition: BasisDefinition) -> str:
-    return "sha256:" + hashlib.sha256(canonical_json(definition)).hexdigest()
+def fingerprint(definition: BasisDefinition, expand: Expand | None = None) -> str:
+    return "sha256:" + hashlib.sha256(canonical_json(definition, expand)).hexdigest()

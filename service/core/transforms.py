@@ -1,0 +1,491 @@
+"""Basis transforms of one life: underwriting ratings and mortality improvement.
+
+A rating (:func:`rated`) applies, in this order:
+
+1. ``age_shift`` s: the life aged x is valued at age x + s (a set-back when s < 0);
+2. ``q_multiplier`` m: q' = min(1, m q) at each whole age of the table (tables only);
+3. ``force_multiplier`` m: μ' = m μ, so ₜp' = (ₜp)^m;
+4. ``extra_q`` e: q' = min(1, q + e) at each whole age of the table (tables only), for the
+   first ``extra_q_years`` n years of age when given: the year of age the life is in
+   (from its valuation age x + s to the next whole age) counts as the first, so the extra
+   covers durations from 0 to n − frac(x + s);
+5. ``extra_force`` δ: μ' = μ + δ, for the first ``extra_force_years`` n years after the
+   life's valuation age when given (durations 0 to n).
+
+Rates stay rates: a q multiplier or an extra q for all years builds a new table with the
+same fractional-age assumption (a rate that reaches 1 closes its row there; the closing 1
+stays 1). The force adjustments and the time-limited extras are :class:`GenericModel`s.
+An age shift is exact delegation (every quantity of the base at age x + s).
+
+Improvement (:func:`improved`) is generational: one table row per whole valuation age (a
+cohort), row j holding q_{j+k}(base year) × Π_{y = base_year+1}^{valuation_year+k} (1 − r(j+k, y)).
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+
+import numpy as np
+
+from .errors import ComputationLimitError, DomainError, fmt
+from .generic import NEGLIGIBLE_HAZARD, GenericModel, check_single_life, negligible_horizon
+from .lifetime import MAX_HORIZON, LifetimeModel, as_float_array
+from .tables import TableSet
+
+#: the order in which the parts of a rating are applied (echoed by GET /v1/laws)
+RATING_ORDER = (
+    "age_shift: the life aged x is valued at age x + s",
+    "q_multiplier: q = min(1, m q) at each whole age of the table",
+    "force_multiplier: μ = m μ",
+    "extra_q: q = min(1, q + e) at each whole age of the table, for the first extra_q_years "
+    "years of age (the year the life is in counts as the first)",
+    "extra_force: μ = μ + δ for the first extra_force_years years after the life's age",
+)
+
+#: the longest table (rates) that can be improved: one row per cohort makes L² values
+MAX_IMPROVED_RATES = 300
+
+
+# ---- tables with modified rates -----------------------------------------------------------
+
+
+def retabled(base: TableSet, q: np.ndarray) -> TableSet:
+    """A copy of ``base`` (same rows, assumption and way of choosing rows) with rates ``q``
+    (R, L); each row closes at its first rate of 1."""
+    new = copy.copy(base)
+    q = np.array(q, dtype=float)
+    n_rows, length = q.shape
+    idx = np.arange(length)[None, :]
+    inside = idx < base.row_length[:, None]
+    closed = (q >= 1.0) & inside
+    row_length = np.where(closed.any(axis=1), np.argmax(closed, axis=1) + 1, base.row_length)
+    q = np.where(idx >= row_length[:, None] - 1, 1.0, np.minimum(q, 1.0))
+    length = int(row_length.max())  # no padding beyond the longest row, as a new table
+    q, idx = q[:, :length], idx[:, :length]
+    new.q = q
+    new.row_length = row_length
+    close_shift = 0.0 if base.assumption == "udd" else 1.0
+    new.row_limit = base.row_start + row_length - close_shift
+    with np.errstate(divide="ignore"):
+        steps = -np.log1p(-q)
+    lam = np.zeros((n_rows, length + 1))
+    lam[:, 1:] = np.cumsum(steps, axis=1)
+    new.lam = lam
+    ym = base._partial(q, np.zeros_like(q), np.ones_like(q))
+    valid = idx < row_length[:, None]
+    new.year_moments = np.where(valid[..., None], ym, 0.0)
+    new._finish_grid()
+    new.limiting_age = float(np.max(new.row_limit))
+    new.max_age = new.limiting_age
+    return new
+
+
+def _table_of(model: LifetimeModel, field: str, suggestion: str) -> TableSet:
+    if isinstance(model, TableSet):
+        return model
+    raise DomainError(
+        field,
+        f"{field} applies to the rates q of a table at whole ages, and this base is a "
+        f"{model.kind}, not a table; {suggestion}",
+    )
+
+
+# ---- an age shift: exact delegation --------------------------------------------------------
+
+
+class Shifted(LifetimeModel):
+    """The base's lifetime of a life aged x + s, for a life aged x."""
+
+    def __init__(self, base: LifetimeModel, shift: float):
+        self.base = base
+        self.shift = float(shift)
+        self.kind = base.kind
+        self.limiting_age = base.limiting_age - self.shift
+        self.max_age = base.max_age - self.shift
+
+    def _a(self, age):
+        return np.asarray(age, float) + self.shift
+
+    def check_lives(self, age, duration) -> None:
+        age = as_float_array(age)
+        valued = age + self.shift
+        bad = np.flatnonzero(~(age >= 0))
+        if bad.size:
+            i = int(bad[0])
+            raise DomainError(f"lives[{i}].age", f"age must be at least 0 (got {fmt(age[i])})")
+        bad = np.flatnonzero(~(valued >= 0))
+        if bad.size:
+            i = int(bad[0])
+            raise DomainError(
+                f"lives[{i}].age",
+                f"with age_shift {fmt(self.shift)} the life is valued at age "
+                f"{fmt(valued[i])}, which must be at least 0 (got age {fmt(age[i])})",
+            )
+        try:
+            self.base.check_lives(valued, duration)
+        except DomainError as exc:
+            raise DomainError(
+                exc.field,
+                f"{exc.message}; with age_shift {fmt(self.shift)} a life aged x is valued at "
+                f"age x + {fmt(self.shift)}",
+            ) from None
+
+    def span_hazard(self, age, duration, t0, t1):
+        return self.base.span_hazard(self._a(age), duration, t0, t1)
+
+    def force(self, age, duration, t):
+        return self.base.force(self._a(age), duration, t)
+
+    def cumulative_hazard(self, age, duration, t):
+        return self.base.cumulative_hazard(self._a(age), duration, t)
+
+    def deferred_death(self, age, duration, deferral, period=1.0):
+        return self.base.deferred_death(self._a(age), duration, deferral, period)
+
+    def complete_moments(self, age, duration, orders, term=None):
+        return self.base.complete_moments(self._a(age), duration, orders, term)
+
+    def curtate_moments(self, age, duration, orders, term=None):
+        return self.base.curtate_moments(self._a(age), duration, orders, term)
+
+    def complete_quantiles(self, age, duration, probabilities):
+        return self.base.complete_quantiles(self._a(age), duration, probabilities)
+
+    def curtate_quantiles(self, age, duration, probabilities):
+        return self.base.curtate_quantiles(self._a(age), duration, probabilities)
+
+    def horizon(self, age, duration):
+        return self.base.horizon(self._a(age), duration)
+
+    def kink_phase(self, age, duration):
+        return self.base.kink_phase(self._a(age), duration)
+
+
+# ---- force adjustments ---------------------------------------------------------------------
+
+
+def _sample_force_min(base: LifetimeModel, multiplier: float) -> tuple[float, float]:
+    """The least m μ over the ages the base values (16 points a year, and just before each
+    whole age), with the age where it is reached."""
+    start = float(getattr(base, "row_start", np.zeros(1)).min()) if hasattr(base, "row_start") else 0.0
+    top = base.max_age if math.isfinite(base.max_age) else start + 200.0
+    top = min(top, start + MAX_HORIZON)
+    grid = np.arange(start, top, 1.0 / 16.0)
+    grid = np.concatenate([grid, np.floor(grid) + 1.0 - 1e-9])
+    grid = grid[grid < top]
+    if grid.size == 0:
+        return math.inf, start
+    with np.errstate(all="ignore"):
+        mu = base.force(grid, np.zeros_like(grid), [0.0])[:, 0]
+    mu = np.where(np.isfinite(mu), mu, np.inf)
+    k = int(np.argmin(mu))
+    return float(multiplier * mu[k]), float(grid[k])
+
+
+class ForceAdjusted(GenericModel):
+    """μ' = m μ + δ: H' = m H + δ t (a base's limiting age is kept even when m = 0)."""
+
+    def __init__(self, base: LifetimeModel, multiplier: float = 1.0, extra: float = 0.0,
+                 field: str = "extra_force"):
+        self.base = base
+        self.m = float(multiplier)
+        self.delta = float(extra)
+        self.kind = base.kind
+        self.limiting_age = base.limiting_age
+        self.max_age = base.max_age
+        if self.m == 0.0 and self.delta == 0.0:
+            raise DomainError(
+                "force_multiplier",
+                "a force multiplier of 0 with no extra force leaves no mortality at all, so "
+                "no lifetime distribution exists; use a multiplier above 0",
+            )
+        if self.delta < 0.0:
+            low, where = _sample_force_min(base, self.m)
+            if low + self.delta < 0.0:
+                raise DomainError(
+                    field,
+                    f"the extra force {fmt(self.delta)} would make the force of mortality "
+                    f"negative: the rated force before it is {fmt(low)} at age {fmt(where)}; "
+                    f"extra_force must be at least {fmt(-low)} here",
+                )
+        if math.isfinite(base.max_age) and base.max_age < base.limiting_age and self.m < 1.0:
+            self.max_age = self._oldest_age()
+
+    def _oldest_age(self) -> float:
+        """Laws keep a grid of whole ages: the oldest age from which the adjusted survival to
+        the end of the base's grid is still negligible."""
+        lo, hi = 0.0, float(self.base.max_age)
+        for _ in range(60):
+            mid = 0.5 * (lo + hi)
+            a = np.array([[mid]])
+            d = np.zeros_like(a)
+            h_end = self.base.horizon(np.array([mid]), np.zeros(1))[0] + 1.0
+            with np.errstate(all="ignore"):
+                h = self.span_hazard(a, d, np.zeros((1, 1)), np.array([[h_end]]))[0, 0]
+            if h >= NEGLIGIBLE_HAZARD or not math.isfinite(h):
+                lo = mid
+            else:
+                hi = mid
+        if lo <= 0.0:
+            raise ComputationLimitError(
+                "force_multiplier",
+                f"with force_multiplier {fmt(self.m)} this {self.base.kind} keeps lives alive "
+                f"beyond the ages the service computes for it; use a larger multiplier",
+            )
+        return lo
+
+    def check_lives(self, age, duration) -> None:
+        self.base.check_lives(age, duration)
+        if self.max_age < self.base.max_age:
+            age = as_float_array(age)
+            bad = np.flatnonzero(~(age < self.max_age))
+            if bad.size:
+                i = int(bad[0])
+                raise DomainError(f"lives[{i}].age", self._age_message(age[i]))
+
+    def span_hazard(self, age, duration, t0, t1):
+        with np.errstate(over="ignore", invalid="ignore"):
+            h = self.base.span_hazard(age, duration, t0, t1)
+            t0b, t1b = np.broadcast_arrays(np.asarray(t0, float), np.asarray(t1, float))
+            out = self.m * h + self.delta * np.maximum(t1b - t0b, 0.0)
+        return np.where(np.isinf(h), np.inf, out)
+
+    def force(self, age, duration, t):
+        return self.m * self.base.force(age, duration, t) + self.delta
+
+    def kink_phase(self, age, duration):
+        return self.base.kink_phase(age, duration)
+
+    def horizon(self, age, duration):
+        age, duration = self._lives(age, duration)
+        guess = self.base.horizon(age, duration)
+        if self.m >= 1.0 and self.delta >= 0.0:
+            return guess
+        a, d = self._columns(age, duration)
+        return negligible_horizon(self, a, d, guess)
+
+
+# ---- the first n years under one model, then another ---------------------------------------
+
+
+def _point_force(model: LifetimeModel, age, duration) -> np.ndarray:
+    """μ at the given ages (any shape), for lives with the given durations."""
+    shape = np.shape(age)
+    mu = model.force(np.ravel(age), np.ravel(duration), [0.0])[:, 0]
+    return mu.reshape(shape)
+
+
+class Spliced(GenericModel):
+    """``first`` for the first n years, then ``then`` from age x + n (duration d + n).
+
+    With ``whole_ages`` the n years are years of age: the year the life is in counts as the
+    first, so the switch is at duration τ = n − frac(x).
+    """
+
+    def __init__(self, first: LifetimeModel, then: LifetimeModel, years: float, whole_ages: bool):
+        self.first = first
+        self.then = then
+        self.years = float(years)
+        self.whole_ages = whole_ages
+        self.kind = then.kind
+        self.limiting_age = min(first.limiting_age, then.limiting_age)
+        self.max_age = min(first.max_age, then.max_age)
+
+    def _switch(self, age):
+        age = np.asarray(age, float)
+        if self.whole_ages:
+            return self.years - (age - np.floor(age))
+        return np.full(age.shape, self.years)
+
+    def check_lives(self, age, duration) -> None:
+        self.first.check_lives(age, duration)
+        self.then.check_lives(age, duration)
+
+    def span_hazard(self, age, duration, t0, t1):
+        age, duration, t0, t1 = np.broadcast_arrays(
+            np.asarray(age, float), np.asarray(duration, float), np.asarray(t0, float),
+            np.asarray(t1, float),
+        )
+        tau = self._switch(age)
+        with np.errstate(over="ignore", invalid="ignore"):
+            h1 = self.first.span_hazard(age, duration, np.minimum(t0, tau), np.minimum(t1, tau))
+            late = t1 > tau
+            h2 = np.where(
+                late,
+                self.then.span_hazard(
+                    age + tau, duration + tau, np.maximum(t0 - tau, 0.0),
+                    np.maximum(t1 - tau, 0.0),
+                ),
+                0.0,
+            )
+            out = h1 + h2
+        return np.where(t1 <= t0, 0.0, np.where(np.isnan(out), np.inf, out))
+
+    def force(self, age, duration, t):
+        a, d = self._columns(age, duration)
+        t = as_float_array(t)[None, :]
+        a, d, t = np.broadcast_arrays(a, d, t)
+        tau = self._switch(a)
+        with np.errstate(all="ignore"):
+            mu1 = _point_force(self.first, a + t, d + t)
+            mu2 = _point_force(self.then, a + t, d + t)
+            h = self.span_hazard(a, d, np.zeros_like(t), t)
+        mu = np.where(t < tau, mu1, mu2)
+        return np.where(np.isfinite(mu) & np.isfinite(h), mu, np.nan)
+
+    def kink_phases(self, age, duration):
+        age, duration = self._lives(age, duration)
+        tau = self._switch(age)
+        tau_phase = tau - np.ceil(tau) + 1.0
+        return np.stack(
+            [
+                self.first.kink_phase(age, duration),
+                self.then.kink_phase(age, duration),
+                np.clip(tau_phase, 1e-300, 1.0),
+            ],
+            axis=1,
+        )
+
+    def kink_phase(self, age, duration):
+        return self.kink_phases(age, duration).min(axis=1)
+
+    def horizon(self, age, duration):
+        age, duration = self._lives(age, duration)
+        guess = np.maximum(self.first.horizon(age, duration), self.then.horizon(age, duration))
+        a, d = self._columns(age, duration)
+        return negligible_horizon(self, a, d, guess)
+
+
+# ---- a rating ---------------------------------------------------------------------------------
+
+
+def rated(
+    base: LifetimeModel,
+    *,
+    age_shift: float | None = None,
+    q_multiplier: float | None = None,
+    force_multiplier: float | None = None,
+    extra_q: float | None = None,
+    extra_q_years: float | None = None,
+    extra_force: float | None = None,
+    extra_force_years: float | None = None,
+) -> LifetimeModel:
+    """The rated model, the parts applied in the order of ``RATING_ORDER``."""
+    check_single_life(base, "base")
+    given = [v for v in (age_shift, q_multiplier, force_multiplier, extra_q, extra_force)
+             if v is not None]
+    if not given:
+        raise DomainError(
+            "",
+            "an adjusted basis needs at least one of age_shift, q_multiplier, "
+            "force_multiplier, extra_q, extra_force",
+        )
+    for name, value in (("age_shift", age_shift), ("extra_force", extra_force)):
+        if value is not None and not math.isfinite(value):
+            raise DomainError(name, f"{name} must be a finite number (got {fmt(value)})")
+    if extra_q_years is not None and extra_q is None:
+        raise DomainError("extra_q_years", "extra_q_years needs extra_q")
+    if extra_force_years is not None and extra_force is None:
+        raise DomainError("extra_force_years", "extra_force_years needs extra_force")
+    if extra_q is not None and force_multiplier is not None:
+        raise DomainError(
+            "extra_q",
+            "extra_q (an addition to the rates of the table) cannot follow force_multiplier "
+            "in one rating, because a multiplied force has no rates of the table's "
+            "fractional-age form; nest two adjusted bases instead (extra_q inside, "
+            "force_multiplier outside), or use extra_force",
+        )
+    inner = base.base if isinstance(base, Shifted) else base
+    model = inner
+    # 2. q multiplier (tables)
+    if q_multiplier is not None:
+        table = _table_of(model, "q_multiplier", "use force_multiplier for a law")
+        model = retabled(table, np.minimum(1.0, q_multiplier * table.q))
+    # 3. force multiplier
+    if force_multiplier is not None and force_multiplier != 1.0:
+        model = ForceAdjusted(model, force_multiplier, 0.0, field="force_multiplier")
+    # 4. extra q (tables)
+    if extra_q is not None:
+        table = _table_of(model, "extra_q", "use extra_force for a law")
+        loaded = retabled(table, np.minimum(1.0, table.q + extra_q))
+        model = loaded if extra_q_years is None else Spliced(loaded, table, extra_q_years, True)
+    # 5. extra force
+    if extra_force is not None:
+        loaded = ForceAdjusted(model, 1.0, extra_force)
+        model = (
+            loaded if extra_force_years is None else Spliced(loaded, model, extra_force_years, False)
+        )
+    shift = (base.shift if isinstance(base, Shifted) else 0.0) + (age_shift or 0.0)
+    return Shifted(model, shift) if shift != 0.0 else model
+
+
+# ---- improvement ----------------------------------------------------------------------------
+
+
+class CohortTable(TableSet):
+    """One row per whole valuation age: a life aged x uses the row of floor(x)."""
+
+    kind = "improved table"
+
+    def _row_of(self, age, duration):
+        age = np.asarray(age, float)
+        with np.errstate(invalid="ignore"):
+            r = np.floor(np.nan_to_num(age, nan=0.0)) - self.first_age
+        return np.clip(r, 0, self.row_start.size - 1).astype(np.int64)
+
+
+def improvement_factors(
+    ages: np.ndarray, calendar_last: np.ndarray, base_year: int, rate_of
+) -> np.ndarray:
+    """Π_{y = base_year+1}^{last} (1 − r(age, y)) for each (age, last) pair."""
+    out = np.ones(np.broadcast(ages, calendar_last).shape)
+    ages_b, last_b = np.broadcast_arrays(ages, calendar_last)
+    top = int(np.max(last_b)) if last_b.size else base_year
+    for year in range(base_year + 1, top + 1):
+        active = last_b >= year
+        out = np.where(active, out * (1.0 - rate_of(ages_b, year)), out)
+    return out
+
+
+def improved(
+    base: LifetimeModel,
+    base_year: int,
+    valuation_year: int,
+    rate_of,
+) -> CohortTable:
+    """The generational table: ``rate_of(ages, year)`` gives r for whole ages in a year."""
+    check_single_life(base, "base")
+    if not isinstance(base, TableSet) or base.row_start.size != 1:
+        raise DomainError(
+            "base",
+            "improvement applies to the rates of a single life table (type table, or a "
+            f"rating of one that keeps it a table); this base is a {base.kind}",
+        )
+    if valuation_year < base_year:
+        raise DomainError(
+            "valuation_year",
+            f"valuation_year must be at least base_year {base_year} (got {valuation_year})",
+        )
+    length = int(base.row_length[0])
+    if length > MAX_IMPROVED_RATES:
+        raise DomainError(
+            "base",
+            f"improvement keeps one row per cohort, so the base table may hold at most "
+            f"{MAX_IMPROVED_RATES} rates (it holds {length})",
+        )
+    start = int(base.row_start[0])
+    q = base.q[0, :length]
+    rows = []
+    for r in range(length):
+        k = np.arange(length - r)
+        ages = start + r + k
+        factors = improvement_factors(ages, valuation_year + k, base_year, rate_of)
+        rates = q[r:] * factors
+        rates = np.where(q[r:] >= 1.0, 1.0, rates)
+        rows.append((start + r, rates))
+    model = CohortTable(rows, base.assumption)
+    model.first_age = start
+    model.limiting_age = float(base.row_limit[0])
+    model.max_age = model.limiting_age
+    return model
