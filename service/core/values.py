@@ -1,0 +1,1018 @@
+"""Present values at interest: life annuities, insurances, pure endowments and endowments,
+with the second moment of each present-value random variable, and net level premiums.
+
+Everything here works on any :class:`LifetimeModel` through its public methods
+(``cumulative_hazard``, ``force``, ``horizon``, ``kink_phase``, ``check_lives``), so rated,
+improved and several-life models value exactly as single lives do.
+
+Interest
+    :class:`Discount` is a discount function v(t). A constant annual effective rate i gives
+    v(t) = (1 + i)^(−t). A term structure gives one annual effective spot rate sₖ for each
+    whole year k = 1..K, so v(k) = (1 + sₖ)^(−k); the last rate continues, v(k) = (1 + s_K)^(−k)
+    for k > K. Between whole years log v is linear: the forward force of interest is constant
+    within each year, so v is continuous and the force jumps only at whole years.
+    Second moments discount with v(t)², the rate "at twice the force".
+
+Benefits (per unit, for each life)
+    * a discrete payment stream pays cₖ at tₖ if the status survives to τₖ (τₖ = tₖ, or the
+      end of the deferral for payments inside a guarantee). With aₖ = cₖ v(tₖ) and the
+      present value Y = Σ aₖ 1{T > τₖ} (τ non-decreasing),
+      E[Y] = Σ aₖ S(τₖ) and E[Y²] = Σₖ aₖ S(τₖ) (aₖ + 2 Σ_{j<k} aⱼ): positive terms, O(n);
+    * a continuous annuity at rate c(t): E[Y] = ∫ c v S(τ) dt and
+      E[Y²] = 2 ∫ c(t) v(t) S(τ(t)) C(t) dt with C(t) = ∫_u^t c v ds in closed form;
+    * an insurance paying bₖ at the end of the period of death:
+      E[Z] = Σ bₖ v(t_{k+1}) P(tₖ < T ≤ t_{k+1}), E[Z²] = Σ bₖ² v(t_{k+1})² P(…);
+      at the moment of death E[Z] = ∫ b v S μ dt, E[Z²] = ∫ b² v² S μ dt.
+
+Continuous integrals use composite Gauss–Legendre panels whose edges are the life's kinks
+(``kink_phase`` + whole years), the whole years where the force of interest may jump, the
+yearly steps of an increasing benefit and the ends of deferral, guarantee and term; a panel is
+split further where the cumulative hazard rises by more than 1/2 across it. On each panel
+every factor is smooth, so the rule is exact to rounding.
+
+Fast path
+    For a constant rate on a year-grid model (life tables, select tables, laws) and lives at
+    whole ages, :func:`whole_age_tables` keeps per (model, rate), in a small bounded cache, the
+    whole-life annuity-due ä and its second moment, and A and ²A at every whole age of every
+    row, by backward recursion of positive terms. Level annual benefits with whole-year terms,
+    deferrals and guarantees are then a few lookups. The general path is the reference; the
+    tests check that both agree.
+"""
+
+from __future__ import annotations
+
+import math
+import threading
+import weakref
+from collections import OrderedDict
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import ComputationLimitError, DomainError, fmt
+from .lifetime import GL_NODES, GL_WEIGHTS, LifetimeModel, YearGridModel, as_float_array
+
+#: most payment times (or periods) per life in one benefit
+MAX_PAYMENT_TIMES = 20_000
+#: most spot rates in a term structure
+MAX_SPOT_RATES = 1_000
+#: discounting below e^-60 is negligible: payments after that time are left out
+LOG_DISCOUNT_NEGLIGIBLE = 60.0
+#: discounted survival at the horizon above this means the values do not converge
+TAIL_TOLERANCE = 1e-13
+#: lives × values per block of a direct sum, to bound memory
+CHUNK_ELEMENTS = 2_000_000
+#: most Gauss–Legendre sub-panels per panel
+MAX_SUBPANELS = 64
+#: the fast path needs |d| well away from 0 nowhere, but it serves rates ≥ 0 only
+FAST_RATES_FROM = 0.0
+
+TIMINGS_ANNUITY = ("advance", "arrears", "continuous")
+TIMINGS_INSURANCE = ("end-of-year", "end-of-period", "moment-of-death")
+APPROXIMATIONS = ("exact", "udd", "woolhouse")
+
+
+# ---- interest -----------------------------------------------------------------------------------
+
+
+class Discount:
+    """A discount function v(t): a constant annual effective rate or annual spot rates.
+
+    ``log_v`` at whole years 0..K and the forward force of interest in each year; beyond K the
+    force is ``tail_force`` (log(1 + s_K), so that the last spot rate continues).
+    """
+
+    def __init__(self, log_v_whole: np.ndarray, tail_force: float, rate: float | None):
+        self.log_v_whole = log_v_whole  # (K + 1,), log_v_whole[0] = 0
+        self.forward = log_v_whole[:-1] - log_v_whole[1:]  # (K,) force in year k
+        self.tail_force = float(tail_force)
+        self.years = log_v_whole.size - 1
+        #: the constant annual effective rate, or None for a term structure
+        self.rate = rate
+
+    @classmethod
+    def constant(cls, rate: float) -> Discount:
+        rate = float(rate)
+        if not (math.isfinite(rate) and rate > -1.0):
+            raise DomainError(
+                "interest.rate",
+                f"the rate must be a finite number greater than −1 (got {fmt(rate)})",
+            )
+        delta = math.log1p(rate)
+        return cls(np.array([0.0, -delta]), delta, rate)
+
+    @classmethod
+    def spot(cls, spot_rates: Sequence[float]) -> Discount:
+        s = np.asarray(list(spot_rates), dtype=float)
+        if s.ndim != 1 or s.size == 0:
+            raise DomainError("interest.spot_rates", "give at least one spot rate")
+        if s.size > MAX_SPOT_RATES:
+            raise DomainError(
+                "interest.spot_rates",
+                f"at most {MAX_SPOT_RATES} spot rates (got {s.size})",
+            )
+        bad = np.flatnonzero(~(np.isfinite(s) & (s > -1.0)))
+        if bad.size:
+            k = int(bad[0])
+            raise DomainError(
+                f"interest.spot_rates[{k}]",
+                f"each spot rate must be a finite number greater than −1 (got {fmt(s[k])})",
+            )
+        years = np.arange(1, s.size + 1, dtype=float)
+        log_v = np.concatenate([[0.0], -years * np.log1p(s)])
+        return cls(log_v, math.log1p(s[-1]), None)
+
+    @property
+    def delta(self) -> float | None:
+        """The constant force of interest, when the rate is constant."""
+        return None if self.rate is None else self.tail_force
+
+    def force(self, t) -> np.ndarray:
+        """The force of interest in effect at t (right-continuous at whole years)."""
+        t = np.asarray(t, float)
+        k = np.floor(t).astype(np.int64)
+        inside = (k >= 0) & (k < self.years)
+        return np.where(inside, self.forward[np.clip(k, 0, max(self.years - 1, 0))], self.tail_force)
+
+    def log_v(self, t) -> np.ndarray:
+        t = np.asarray(t, float)
+        k = np.clip(np.floor(t), 0, self.years).astype(np.int64)
+        return self.log_v_whole[k] - (t - k) * self.force(t)
+
+    def v(self, t) -> np.ndarray:
+        return np.exp(self.log_v(t))
+
+    def negligible_after(self) -> float:
+        """A time after which v(t) < e^-60 for good (inf when v does not fall for good)."""
+        if self.tail_force <= 0.0:
+            return math.inf
+        peak = float(np.max(self.log_v_whole))
+        k_last = self.years
+        # after K, log v falls linearly at tail_force; before K it may wander
+        at_k = float(self.log_v_whole[-1])
+        t = k_last + max(0.0, (at_k + LOG_DISCOUNT_NEGLIGIBLE) / self.tail_force)
+        if peak > -LOG_DISCOUNT_NEGLIGIBLE or at_k > -LOG_DISCOUNT_NEGLIGIBLE:
+            return t
+        return float(k_last)
+
+    def key(self) -> tuple:
+        return (self.rate, self.tail_force, self.log_v_whole.tobytes())
+
+    def certain_cumulative(self, t, start: float, increasing: bool) -> np.ndarray:
+        """C(t) = ∫_start^t c(s) v(s) ds, c = 1 (or ⌊s − start⌋ + 1 when increasing), t ≥ start.
+
+        Exact: c and the force of interest are constant between the breakpoints (whole years
+        and, when increasing, start + whole years).
+        """
+        t = np.asarray(t, float)
+        top = float(np.max(t)) if t.size else start
+        n = int(math.ceil(max(top - start, 0.0))) + 2
+        points = [start + np.arange(n + 1, dtype=float)] if increasing else [np.array([start])]
+        whole = np.arange(math.ceil(start), math.ceil(top) + 2, dtype=float)
+        breaks = np.unique(np.concatenate(points + [whole[whole > start]]))
+        rate = self._stream_rate(breaks, start, increasing)
+        f = self.force(breaks)
+        logv = self.log_v(breaks)
+        seg = rate[:-1] * np.exp(logv[:-1]) * _phi(f[:-1], np.diff(breaks))
+        cum = np.concatenate([[0.0], np.cumsum(seg)])
+        i = np.clip(np.searchsorted(breaks, t, side="right") - 1, 0, breaks.size - 1)
+        return cum[i] + rate[i] * np.exp(logv[i]) * _phi(f[i], t - breaks[i])
+
+    @staticmethod
+    def _stream_rate(at, start, increasing):
+        if not increasing:
+            return np.ones_like(at)
+        return np.floor(at - start + 1e-12) + 1.0
+
+
+def _phi(f, x):
+    """∫₀ˣ e^(−f s) ds, accurate for small f x."""
+    f = np.asarray(f, float)
+    x = np.asarray(x, float)
+    fx = f * x
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        exact = -np.expm1(-fx) / np.where(f == 0.0, 1.0, f)
+    series = x * (1.0 - fx / 2.0 + fx * fx / 6.0)
+    return np.where(np.abs(fx) > 1e-5, exact, series)
+
+
+# ---- benefits ------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class LifeAnnuity:
+    """Payments of 1/m each 1/m year while the status survives (rate 1 when continuous)."""
+
+    timing: str = "advance"
+    frequency: int = 1
+    term: float | None = None
+    deferral: float = 0.0
+    guarantee: float = 0.0
+    increasing: bool = False
+    approximation: str = "exact"
+
+
+@dataclass(frozen=True)
+class LifeInsurance:
+    """1 on death (or k + 1 on death in the k-th year of cover when increasing)."""
+
+    timing: str = "end-of-year"
+    frequency: int = 1
+    term: float | None = None
+    deferral: float = 0.0
+    increasing: bool = False
+
+
+@dataclass(frozen=True)
+class PureEndowment:
+    """1 at the end of the term if the status survives: ₙE_x."""
+
+    term: float
+
+
+@dataclass(frozen=True)
+class Endowment:
+    """A term insurance plus a pure endowment over the same term."""
+
+    term: float
+    timing: str = "end-of-year"
+    frequency: int = 1
+
+
+Benefit = LifeAnnuity | LifeInsurance | PureEndowment | Endowment
+
+
+@dataclass
+class BenefitValues:
+    """For each life: E[PV], E[PV²], the standard deviation, and optionally a premium."""
+
+    value: np.ndarray
+    second_moment: np.ndarray
+    standard_deviation: np.ndarray
+    net_premium: np.ndarray | None = None
+    approximation: str | None = None
+
+
+# ---- validation of benefits --------------------------------------------------------------------
+
+
+def _whole_multiple(value: float, m: int) -> bool:
+    x = value * m
+    return abs(x - round(x)) <= 1e-9 * max(1.0, abs(x))
+
+
+def check_benefit(b: Benefit, discount: Discount) -> None:
+    """Raises DomainError (fields relative to the benefit) for an impossible benefit."""
+    if isinstance(b, (LifeAnnuity, LifeInsurance, Endowment)):
+        if not (isinstance(b.frequency, (int, np.integer)) and b.frequency >= 1):
+            raise DomainError(
+                "frequency", f"frequency must be a positive whole number (got {b.frequency!r})"
+            )
+    term = getattr(b, "term", None)
+    if term is not None and not (math.isfinite(term) and term > 0):
+        raise DomainError("term", f"term must be greater than 0 (got {fmt(term)})")
+    deferral = getattr(b, "deferral", 0.0)
+    if not (math.isfinite(deferral) and deferral >= 0):
+        raise DomainError("deferral", f"deferral must be at least 0 (got {fmt(deferral)})")
+    if isinstance(b, LifeAnnuity):
+        if b.timing not in TIMINGS_ANNUITY:
+            raise DomainError("timing", f"timing must be one of {', '.join(TIMINGS_ANNUITY)}")
+        if b.approximation not in APPROXIMATIONS:
+            raise DomainError(
+                "approximation", f"approximation must be one of {', '.join(APPROXIMATIONS)}"
+            )
+        if not (math.isfinite(b.guarantee) and b.guarantee >= 0):
+            raise DomainError("guarantee", f"guarantee must be at least 0 (got {fmt(b.guarantee)})")
+        if b.term is not None and b.guarantee > b.term:
+            raise DomainError(
+                "guarantee",
+                f"the guarantee ({fmt(b.guarantee)} years) cannot be longer than the term "
+                f"({fmt(b.term)} years)",
+            )
+        if b.timing == "continuous":
+            if b.frequency != 1:
+                raise DomainError(
+                    "frequency",
+                    "a continuous annuity has no frequency: leave frequency out (or give 1)",
+                )
+            if b.approximation != "exact":
+                raise DomainError(
+                    "approximation",
+                    "the approximations value 1/m-thly annuities from annual ones; a "
+                    "continuous annuity is always valued exactly",
+                )
+        else:
+            m = int(b.frequency)
+            for name in ("term", "guarantee"):
+                value = getattr(b, name)
+                if value is not None and not _whole_multiple(value, m):
+                    raise DomainError(
+                        name,
+                        f"{name} must be a whole number of payment periods of 1/{m} year "
+                        f"(got {fmt(value)})",
+                    )
+        if b.approximation != "exact":
+            if b.increasing:
+                raise DomainError(
+                    "approximation",
+                    f"the {b.approximation} approximation applies to level annuities; value an "
+                    "increasing annuity exactly",
+                )
+            for name in ("term", "deferral", "guarantee"):
+                value = getattr(b, name)
+                if value is not None and value != math.floor(value):
+                    raise DomainError(
+                        name,
+                        f"with the {b.approximation} approximation, {name} must be a whole "
+                        f"number of years (got {fmt(value)})",
+                    )
+            if b.approximation == "udd" and discount.rate is None:
+                raise DomainError(
+                    "approximation",
+                    "the UDD approximation needs a constant rate of interest "
+                    "(its factors α(m) and β(m) depend on i); use woolhouse or exact with "
+                    "spot rates",
+                )
+    if isinstance(b, (LifeInsurance, Endowment)):
+        if b.timing not in TIMINGS_INSURANCE:
+            raise DomainError("timing", f"timing must be one of {', '.join(TIMINGS_INSURANCE)}")
+        if b.timing != "end-of-period" and b.frequency != 1:
+            raise DomainError(
+                "frequency",
+                f"frequency applies to end-of-period timing only (timing is {b.timing})",
+            )
+        m = int(b.frequency)
+        if b.timing != "moment-of-death" and b.term is not None and not _whole_multiple(b.term, m):
+            raise DomainError(
+                "term",
+                f"term must be a whole number of periods of 1/{m} year (got {fmt(b.term)})",
+            )
+
+
+# ---- survival helpers ------------------------------------------------------------------------
+
+
+def _survival_from(h: np.ndarray) -> np.ndarray:
+    with np.errstate(over="ignore", invalid="ignore"):
+        s = np.exp(-h)
+    return np.where(np.isfinite(h), s, 0.0)
+
+
+def _chunks(n_lives: int, n_values: int):
+    step = max(1, CHUNK_ELEMENTS // max(n_values, 1))
+    for lo in range(0, n_lives, step):
+        yield slice(lo, min(lo + step, n_lives))
+
+
+def _lives_slice(age, duration, sl):
+    return age[sl], duration[sl]
+
+
+def _end_of_cover(horizon: np.ndarray, start: float, term: float | None, discount: Discount):
+    """Where each life's payments can stop mattering: term end, horizon or discount floor."""
+    end = np.minimum(horizon, discount.negligible_after())
+    if term is not None:
+        end = np.minimum(end, start + term)
+    return np.maximum(end, start)
+
+
+def _check_count(count: float, field: str = "") -> int:
+    if not math.isfinite(count) or count > MAX_PAYMENT_TIMES:
+        shown = "an unbounded number of" if not math.isfinite(count) else f"{int(count):,}"
+        raise ComputationLimitError(
+            field,
+            f"this benefit needs {shown} payment times (or periods) per life; at most "
+            f"{MAX_PAYMENT_TIMES:,} are computed: use a lower frequency or a term, or a "
+            f"basis under which survival (or discounting) ends sooner",
+        )
+    return int(count)
+
+
+def _check_tail(model, age, duration, t_end: np.ndarray, discount: Discount, open_ended: bool):
+    """Whole-life values stop at the horizon: survival there, discounted, must be negligible."""
+    if not open_ended:
+        return
+    t_end = np.asarray(t_end, float)
+    ends = np.unique(t_end)
+    for t in ends:
+        sel = t_end == t
+        h = model.cumulative_hazard(age[sel], duration[sel], np.array([t]))[:, 0]
+        with np.errstate(over="ignore", invalid="ignore"):
+            lv = float(discount.log_v(t))
+            log_w = -h + max(lv, 2.0 * lv) + math.log1p(t)
+        log_w = np.where(np.isnan(log_w), -np.inf, log_w)
+        if np.any(log_w > math.log(TAIL_TOLERANCE)):
+            raise DomainError(
+                "interest",
+                "at this interest the present values do not converge on this basis: "
+                "discounted survival is still not negligible where the basis stops "
+                f"(duration {fmt(round(float(t), 6))} years); use a higher rate",
+            )
+
+
+# ---- the general (reference) path ---------------------------------------------------------------
+
+
+def _discrete_stream(model, age, duration, times, amounts, tau):
+    """E[Y], E[Y²] of Y = Σ aₖ 1{T > τₖ} with aₖ already discounted: (N,), (N,)."""
+    prior = np.cumsum(amounts) - amounts
+    w1 = amounts
+    w2 = amounts * (amounts + 2.0 * prior)
+    n = age.shape[0]
+    v1 = np.zeros(n)
+    v2 = np.zeros(n)
+    for sl in _chunks(n, tau.size):
+        a, d = _lives_slice(age, duration, sl)
+        s = _survival_from(model.cumulative_hazard(a, d, tau))
+        v1[sl] = s @ w1
+        v2[sl] = s @ w2
+    return v1, v2
+
+
+def _annuity_times(b: LifeAnnuity, end: float):
+    """Payment times, amounts (undiscounted) and survival times of a discrete annuity."""
+    m = int(b.frequency)
+    u, g = b.deferral, b.guarantee
+    n_pay = _check_count(math.ceil(round((end - u) * m, 9)) if end > u else 0, "")
+    k = np.arange(n_pay, dtype=float)
+    if b.timing == "advance":
+        t = u + k / m
+    else:
+        t = u + (k + 1.0) / m
+    amounts = np.full(n_pay, 1.0 / m)
+    if b.increasing:
+        amounts = (np.floor(k / m + 1e-12) + 1.0) / m
+    if b.timing == "advance":
+        guaranteed = k / m < g - 1e-12
+    else:
+        guaranteed = (k + 1.0) / m <= g + 1e-12
+    tau = np.where(guaranteed, u, t)
+    return t, amounts, tau
+
+
+def _annuity_general(model, age, duration, horizon, b: LifeAnnuity, discount: Discount):
+    if b.timing == "continuous":
+        return _continuous_annuity(model, age, duration, horizon, b, discount)
+    end = _end_of_cover(horizon, b.deferral, b.term, discount)
+    end = np.maximum(end, b.deferral + b.guarantee)
+    top = float(np.max(end))
+    t, c, tau = _annuity_times(b, top)
+    _check_tail(model, age, duration, end, discount, b.term is None or bool(np.any(end < b.deferral + b.term)))
+    amounts = c * discount.v(t)
+    return _discrete_stream(model, age, duration, t, amounts, tau)
+
+
+def _insurance_general(model, age, duration, horizon, b, discount: Discount):
+    """Death benefit over [u, u + n) (n may be None): E[Z], E[Z²]."""
+    u = getattr(b, "deferral", 0.0)
+    increasing = getattr(b, "increasing", False)
+    end = _end_of_cover(horizon, u, b.term, discount)
+    _check_tail(model, age, duration, end, discount, b.term is None or bool(np.any(end < u + b.term)))
+    if b.timing == "moment-of-death":
+        return _continuous_insurance(model, age, duration, u, end, increasing, discount)
+    m = int(b.frequency) if b.timing == "end-of-period" else 1
+    top = float(np.max(end))
+    n_per = _check_count(math.ceil(round((top - u) * m, 9)) if top > u else 0, "")
+    k = np.arange(n_per + 1, dtype=float)
+    edges = u + k / m
+    benefit = np.ones(n_per)
+    if increasing:
+        benefit = np.floor(k[:-1] / m + 1e-12) + 1.0
+    v_pay = discount.v(edges[1:])
+    w1 = benefit * v_pay
+    w2 = (benefit * v_pay) ** 2
+    n = age.shape[0]
+    z1 = np.zeros(n)
+    z2 = np.zeros(n)
+    for sl in _chunks(n, edges.size):
+        a, d = _lives_slice(age, duration, sl)
+        h = model.cumulative_hazard(a, d, edges)
+        with np.errstate(invalid="ignore", over="ignore"):
+            s0 = _survival_from(h[:, :-1])
+            dq = -np.expm1(-(h[:, 1:] - h[:, :-1]))
+        p = np.where(s0 > 0.0, s0 * np.nan_to_num(dq, nan=1.0), 0.0)
+        z1[sl] = p @ w1
+        z2[sl] = p @ w2
+    return z1, z2
+
+
+def _pure_endowment(model, age, duration, term: float, discount: Discount):
+    s = _survival_from(model.cumulative_hazard(age, duration, np.array([term])))[:, 0]
+    lv = float(discount.log_v(term))
+    return s * math.exp(lv), s * math.exp(2.0 * lv)
+
+
+# ---- continuous benefits: Gauss–Legendre panels between kinks ---------------------------------
+
+
+def _panel_edges(lo: float, hi: float, phase: float, extra: list[float], discount: Discount,
+                 steps_from: float | None, limit_offset: float | None) -> np.ndarray:
+    if hi <= lo:
+        return np.array([lo, lo])
+    pts = [np.array([lo, hi])]
+    first = phase + math.floor(lo - phase)
+    pts.append(first + np.arange(0, math.ceil(hi - first) + 2, dtype=float))
+    if discount.rate is None:
+        pts.append(np.arange(math.floor(lo), math.ceil(hi) + 1, dtype=float))
+    if steps_from is not None:
+        pts.append(steps_from + np.arange(0, math.ceil(hi - steps_from) + 2, dtype=float))
+    if limit_offset is not None:
+        k0 = math.floor(lo - limit_offset)
+        pts.append(limit_offset + np.arange(k0, k0 + math.ceil(hi - lo) + 3, dtype=float))
+    pts.append(np.asarray(extra, float))
+    e = np.unique(np.concatenate(pts))
+    e = e[(e >= lo) & (e <= hi)]
+    # drop slivers left by rounding
+    keep = np.concatenate([[True], np.diff(e) > 1e-12 * max(1.0, hi)])
+    return e[keep]
+
+
+def _nodes(model, age, duration, edges: np.ndarray):
+    """Gauss–Legendre nodes and weights on the panels, split where the hazard jumps."""
+    if edges.size < 2 or edges[-1] <= edges[0]:
+        return np.zeros(0), np.zeros(0)
+    h = model.cumulative_hazard(age, duration, edges)
+    with np.errstate(invalid="ignore"):
+        dh = np.diff(h, axis=1)
+    dh = np.where(np.isfinite(dh), dh, 0.0)
+    worst = np.max(dh, axis=0) if dh.shape[0] else np.zeros(edges.size - 1)
+    n_sub = np.clip(np.ceil(2.0 * worst), 1, MAX_SUBPANELS).astype(np.int64)
+    lo = np.repeat(edges[:-1], n_sub)
+    width = np.repeat(np.diff(edges) / n_sub, n_sub)
+    offset = np.concatenate([np.arange(n) for n in n_sub]).astype(float)
+    start = lo + offset * width
+    t = (start[:, None] + width[:, None] * GL_NODES[None, :]).ravel()
+    w = (width[:, None] * GL_WEIGHTS[None, :]).ravel()
+    return t, w
+
+
+def _phase_groups(model, age, duration):
+    phase = np.asarray(model.kink_phase(age, duration), float)
+    phase = np.round(phase, 12)
+    values, inverse = np.unique(phase, return_inverse=True)
+    return [(float(p), np.flatnonzero(inverse == i)) for i, p in enumerate(values)]
+
+
+def _limit_offset(model, age) -> float | None:
+    """Where the status's survival reaches 0 at a limiting age, as a fractional offset."""
+    omega = getattr(model, "limiting_age", math.inf)
+    if age.ndim != 1 or not math.isfinite(omega) or age.size == 0:
+        return None
+    return float((omega - age[0]) % 1.0)
+
+
+def _continuous_annuity(model, age, duration, horizon, b: LifeAnnuity, discount: Discount):
+    u, g = b.deferral, b.guarantee
+    end = _end_of_cover(horizon, u, b.term, discount)
+    end = np.maximum(end, u + g)
+    _check_tail(model, age, duration, end, discount, b.term is None or bool(np.any(end < u + b.term)))
+    n = age.shape[0]
+    v1 = np.zeros(n)
+    v2 = np.zeros(n)
+    certain = float(discount.certain_cumulative(np.array([u + g]), u, b.increasing)[0]) if g > 0 else 0.0
+    s_u = _survival_from(model.cumulative_hazard(age, duration, np.array([u])))[:, 0]
+    v1 += s_u * certain
+    v2 += s_u * certain**2
+    for phase, idx in _phase_groups(model, age, duration):
+        a, d = age[idx], duration[idx]
+        lo, hi = u + g, float(np.max(end[idx]))
+        edges = _panel_edges(lo, hi, phase, [], discount, u if b.increasing else None,
+                             _limit_offset(model, a))
+        _check_count(edges.size * 4)
+        t, w = _nodes(model, a, d, edges)
+        if t.size == 0:
+            continue
+        _check_count(t.size / 16)
+        rate = Discount._stream_rate(t, u, b.increasing)
+        cv = rate * discount.v(t)
+        cum = discount.certain_cumulative(t, u, b.increasing)
+        for sl in _chunks(idx.size, t.size):
+            s = _survival_from(model.cumulative_hazard(a[sl], d[sl], t))
+            v1[idx[sl]] += s @ (w * cv)
+            v2[idx[sl]] += s @ (w * 2.0 * cv * cum)
+    return v1, v2
+
+
+def _continuous_insurance(model, age, duration, u, end, increasing, discount: Discount):
+    n = age.shape[0]
+    z1 = np.zeros(n)
+    z2 = np.zeros(n)
+    for phase, idx in _phase_groups(model, age, duration):
+        a, d = age[idx], duration[idx]
+        hi = float(np.max(end[idx]))
+        edges = _panel_edges(u, hi, phase, [], discount, u if increasing else None,
+                             _limit_offset(model, a))
+        _check_count(edges.size * 4)
+        t, w = _nodes(model, a, d, edges)
+        if t.size == 0:
+            continue
+        _check_count(t.size / 16)
+        b = Discount._stream_rate(t, u, increasing)
+        bv = b * discount.v(t)
+        for sl in _chunks(idx.size, t.size):
+            s = _survival_from(model.cumulative_hazard(a[sl], d[sl], t))
+            mu = model.force(a[sl], d[sl], t)
+            dens = np.where(s > 0.0, s * np.nan_to_num(mu, nan=0.0, posinf=0.0), 0.0)
+            z1[idx[sl]] += dens @ (w * bv)
+            z2[idx[sl]] += dens @ (w * bv * bv)
+    return z1, z2
+
+
+# ---- approximations for 1/m-thly annuities -------------------------------------------------------
+
+
+def udd_factors(rate: float, m: int) -> tuple[float, float]:
+    """α(m) = i d / (i⁽ᵐ⁾ d⁽ᵐ⁾) and β(m) = (i − i⁽ᵐ⁾) / (i⁽ᵐ⁾ d⁽ᵐ⁾) (→ 1 and (m−1)/(2m) at i = 0)."""
+    delta = math.log1p(rate)
+    if abs(delta) < 1e-8:
+        return 1.0, (m - 1.0) / (2.0 * m)
+    i = rate
+    d = -math.expm1(-delta)
+    i_m = m * math.expm1(delta / m)
+    d_m = -m * math.expm1(-delta / m)
+    return i * d / (i_m * d_m), (i - i_m) / (i_m * d_m)
+
+
+def _approximate_value(model, age, duration, horizon, b: LifeAnnuity, discount: Discount):
+    """The value of a level 1/m-thly annuity from annual values and pure endowments."""
+    m = int(b.frequency)
+    u, g = b.deferral, b.guarantee
+    # the certain part: exact (payments in the guarantee, if the status reaches u)
+    certain = np.zeros(age.shape[0])
+    if g > 0:
+        part = LifeAnnuity(timing=b.timing, frequency=m, term=g, deferral=u, guarantee=g)
+        certain = _annuity_general(model, age, duration, horizon, part, discount)[0]
+    start = u + g
+    term = None if b.term is None else b.term - g
+    if term is not None and term <= 0:
+        return certain
+    annual = LifeAnnuity(timing="advance", frequency=1, term=term, deferral=start)
+    a_annual = _annuity_general(model, age, duration, horizon, annual, discount)[0]
+    e_start = _pure_endowment(model, age, duration, start, discount)[0] if start > 0 else np.ones(age.shape[0])
+    e_end = (
+        _pure_endowment(model, age, duration, start + term, discount)[0]
+        if term is not None
+        else np.zeros(age.shape[0])
+    )
+    if b.approximation == "udd":
+        alpha, beta = udd_factors(float(discount.rate), m)
+        life = alpha * a_annual - beta * (e_start - e_end)
+    else:  # Woolhouse, two terms
+        life = a_annual - (m - 1.0) / (2.0 * m) * (e_start - e_end)
+    if b.timing == "arrears":
+        life = life - (e_start - e_end) / m
+    return certain + life
+
+
+# ---- the fast path: whole-age tables per (model, rate) ----------------------------------------
+
+
+@dataclass(frozen=True)
+class WholeAgeTables:
+    """At every whole-age index j of every row r of a year-grid model, at one rate."""
+
+    v: float
+    lam_safe: np.ndarray  # (R, L + 1) cumulative hazard at whole ages, +inf as 1e300
+    annuity: np.ndarray  # (R, L + 1) whole-life annuity-due ä
+    annuity_second: np.ndarray  # (R, L + 1) E[Y²] of the annuity-due
+    insurance: np.ndarray  # (R, L + 1) A (end of year of death)
+    insurance_second: np.ndarray  # (R, L + 1) ²A
+
+
+_TABLES: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+_TABLES_LOCK = threading.Lock()
+#: rates kept per model (least recently used dropped)
+TABLES_PER_MODEL = 16
+
+
+def fast_path_model(model) -> bool:
+    return isinstance(model, YearGridModel) and hasattr(model, "one_year_survival") and hasattr(
+        model, "lam"
+    )
+
+
+def whole_age_tables(model: YearGridModel, rate: float) -> WholeAgeTables:
+    """The tables for ``rate``, built once (backward recursions of positive terms) and kept."""
+    key = float(rate)
+    with _TABLES_LOCK:
+        per_model = _TABLES.get(model)
+        if per_model is not None and key in per_model:
+            per_model.move_to_end(key)
+            return per_model[key]
+    tables = _build_tables(model, key)
+    with _TABLES_LOCK:
+        per_model = _TABLES.setdefault(model, OrderedDict())
+        per_model[key] = tables
+        per_model.move_to_end(key)
+        while len(per_model) > TABLES_PER_MODEL:
+            per_model.popitem(last=False)
+    return tables
+
+
+def _build_tables(model: YearGridModel, rate: float) -> WholeAgeTables:
+    v = 1.0 / (1.0 + rate)
+    p = model.one_year_survival  # (R, L)
+    n_rows, n_years = p.shape
+    ann = np.zeros((n_rows, n_years + 1))
+    ann2 = np.zeros((n_rows, n_years + 1))
+    ins = np.zeros((n_rows, n_years + 1))
+    ins2 = np.zeros((n_rows, n_years + 1))
+    ann[:, n_years] = 1.0  # a life at the grid's end (probability ~0) dies within the year
+    ann2[:, n_years] = 1.0
+    ins[:, n_years] = v
+    ins2[:, n_years] = v * v
+    for j in range(n_years - 1, -1, -1):
+        pj = p[:, j]
+        qj = 1.0 - pj
+        ann[:, j] = 1.0 + v * pj * ann[:, j + 1]
+        ann2[:, j] = 1.0 + pj * (2.0 * v * ann[:, j + 1] + v * v * ann2[:, j + 1])
+        ins[:, j] = v * qj + v * pj * ins[:, j + 1]
+        ins2[:, j] = v * v * qj + v * v * pj * ins2[:, j + 1]
+    lam_safe = np.where(np.isfinite(model.lam), model.lam, 1e300)
+    return WholeAgeTables(v, lam_safe, ann, ann2, ins, ins2)
+
+
+class _FastLives:
+    """Lives at whole ages on a year-grid model, with the lookups the formulas need.
+
+    Built once per request; each lookup is a couple of numpy operations on the lives.
+    """
+
+    def __init__(self, model: YearGridModel, loc, rate: float):
+        self.tab = whole_age_tables(model, rate)
+        self.last = self.tab.lam_safe.shape[1] - 1
+        # one life: plain Python numbers (numpy's fixed cost per call dominates otherwise)
+        self.scalar = loc.row.size == 1
+        if self.scalar:
+            self.r = int(loc.row[0])
+            self.j = int(loc.index[0])
+            self.lam_row = self.tab.lam_safe[self.r].tolist()
+        else:
+            self.r = loc.row
+            self.j = loc.index
+
+    def endow(self, n: float, power: int = 1, start: float = 0.0):
+        """v^(power·n) ₙp at age j + start (0 past the grid)."""
+        tab = self.tab
+        n = int(n)
+        if self.scalar:
+            j0 = min(self.j + int(start), self.last)
+            j1 = min(self.j + int(start) + n, self.last)
+            gap = self.lam_row[j1] - self.lam_row[j0]
+            return tab.v ** (power * n) * (math.exp(-gap) if gap < 745.0 else 0.0)
+        j0 = np.minimum(self.j + int(start), self.last)
+        j1 = np.minimum(self.j + int(start) + n, self.last)
+        return tab.v ** (power * n) * np.exp(tab.lam_safe[self.r, j0] - tab.lam_safe[self.r, j1])
+
+    def at(self, table: np.ndarray, n: float):
+        if self.scalar:
+            return float(table[self.r, min(self.j + int(n), self.last)])
+        return table[self.r, np.minimum(self.j + int(n), self.last)]
+
+    def annuity_due(self, n: float | None, start: float = 0.0):
+        """E[Y], E[Y²] of the annual annuity-due for n years from whole age j + start."""
+        a_x = self.at(self.tab.annuity, start)
+        a2_x = self.at(self.tab.annuity_second, start)
+        if n is None:
+            return a_x, a2_x
+        e1 = self.endow(n, 1, start)
+        p_n = self.endow(n, 0, start)
+        a_xn = self.at(self.tab.annuity, start + n)
+        a2_xn = self.at(self.tab.annuity_second, start + n)
+        v = self.tab.v
+        certain = _annuity_certain_due(v, int(n))
+        first = a_x - e1 * a_xn
+        second = a2_x - p_n * (2.0 * certain * v**n * a_xn + v ** (2 * n) * a2_xn)
+        return first, second
+
+    def insurance(self, n: float | None, start: float = 0.0):
+        a = self.at(self.tab.insurance, start)
+        a2 = self.at(self.tab.insurance_second, start)
+        if n is None:
+            return a, a2
+        return (
+            a - self.endow(n, 1, start) * self.at(self.tab.insurance, start + n),
+            a2 - self.endow(n, 2, start) * self.at(self.tab.insurance_second, start + n),
+        )
+
+
+def _annuity_certain_due(v: float, n: int) -> float:
+    """ä_n at v: Σ_{k<n} vᵏ."""
+    if n <= 0:
+        return 0.0
+    if v == 1.0:
+        return float(n)
+    return (1.0 - v**n) / (1.0 - v)
+
+
+def _is_whole(x) -> bool:
+    return x is None or (float(x) == math.floor(float(x)))
+
+
+def _benefit_on_fast_path(b: Benefit) -> bool:
+    """Level annual benefits with whole-year terms, deferrals and guarantees."""
+    if isinstance(b, LifeAnnuity):
+        return (
+            b.timing in ("advance", "arrears")
+            and b.frequency == 1
+            and not b.increasing
+            and b.approximation == "exact"
+            and _is_whole(b.term) and _is_whole(b.deferral) and _is_whole(b.guarantee)
+        )
+    annual = getattr(b, "timing", "") == "end-of-year" or (
+        getattr(b, "timing", "") == "end-of-period" and getattr(b, "frequency", 1) == 1
+    )
+    if isinstance(b, LifeInsurance):
+        return annual and not b.increasing and _is_whole(b.term) and _is_whole(b.deferral)
+    if isinstance(b, Endowment):
+        return annual and _is_whole(b.term)
+    return _is_whole(b.term)
+
+
+def _fast_lives(model, age, duration, discount: Discount) -> _FastLives | None:
+    """The fast-path lookups when the model, the interest and the lives allow them."""
+    if discount.rate is None or discount.rate < FAST_RATES_FROM or not fast_path_model(model):
+        return None
+    if np.ndim(age) != 1:
+        return None
+    loc = model._locate(age, np.broadcast_to(duration, age.shape))
+    if np.any(loc.frac != 0.0):
+        return None
+    return _FastLives(model, loc, float(discount.rate))
+
+
+def _fast_values(lives: _FastLives, n_lives: int, b: Benefit):
+    """E[PV], E[PV²] from the whole-age tables (see the module docstring)."""
+    v = lives.tab.v
+    if isinstance(b, PureEndowment):
+        return _array(lives.endow(b.term), n_lives), _array(lives.endow(b.term, 2), n_lives)
+    if isinstance(b, Endowment):
+        z1, z2 = lives.insurance(b.term)
+        return (_array(z1 + lives.endow(b.term), n_lives),
+                _array(z2 + lives.endow(b.term, 2), n_lives))
+    if isinstance(b, LifeInsurance):
+        u = int(b.deferral)
+        z1, z2 = lives.insurance(b.term, u)
+        if u:
+            z1 = lives.endow(u) * z1
+            z2 = lives.endow(u, 2) * z2
+        return _array(z1, n_lives), _array(z2, n_lives)
+    # a life annuity in advance: guarantee g, term n, deferral u, as
+    # Y = 1{T > u} v^u (ä_g + 1{T > u + g} v^g Y'), Y' the annuity-due for n − g years at x + u + g;
+    # in arrears, payments at 1..n are the advance annuity with (g + 1, n + 1) less the first 1
+    u, g = int(b.deferral), int(b.guarantee)
+    n = None if b.term is None else int(b.term)
+    arrears = b.timing == "arrears"
+    if arrears:
+        g = g + 1
+        n = None if n is None else n + 1
+    certain = _annuity_certain_due(v, g)
+    rest = None if n is None else n - g
+    if rest is not None and rest <= 0:
+        y1 = certain if lives.scalar else np.full(n_lives, certain)
+        y2 = y1 * certain
+    else:
+        l1, l2 = lives.annuity_due(rest, u + g)
+        e1 = lives.endow(g, 1, u) if g else 1.0
+        e2 = lives.endow(g, 2, u) if g else 1.0
+        y1 = certain + e1 * l1
+        y2 = certain**2 + 2.0 * certain * e1 * l1 + e2 * l2
+    if arrears:
+        y2 = y2 - 2.0 * y1 + 1.0
+        y1 = y1 - 1.0
+    if u:
+        y1 = lives.endow(u) * y1
+        y2 = lives.endow(u, 2) * y2
+    return _array(y1, n_lives), _array(max(y2, 0.0) if lives.scalar else np.maximum(y2, 0.0), n_lives)
+
+
+def _array(x, n_lives: int) -> np.ndarray:
+    return np.full(n_lives, x) if np.ndim(x) == 0 else x
+
+
+# ---- the entry point ---------------------------------------------------------------------------
+
+
+def _check_reach(horizon: np.ndarray, b: Benefit) -> None:
+    """A deferral or guarantee must end before the status's limiting age (or horizon)."""
+    checks = []
+    if isinstance(b, (LifeAnnuity, LifeInsurance)) and b.deferral > 0:
+        checks.append(("deferral", b.deferral))
+    if isinstance(b, LifeAnnuity) and b.guarantee > 0:
+        checks.append(("guarantee", b.deferral + b.guarantee))
+    for name, reach in checks:
+        bad = np.flatnonzero(~(reach < horizon))
+        if bad.size:
+            i = int(bad[0])
+            what = "deferral" if name == "deferral" else "deferral plus guarantee"
+            raise DomainError(
+                name,
+                f"the {what} ({fmt(reach)} years) reaches past the limiting age of the basis "
+                f"for lives[{i}], whose survival ends (or becomes negligible) after "
+                f"{fmt(round(float(horizon[i]), 6))} years",
+            )
+
+
+class Valuation:
+    """One request's lives on one basis at one interest: what every benefit shares."""
+
+    def __init__(self, model: LifetimeModel, age, duration, discount: Discount, fast: bool = True):
+        self.model = model
+        self.age = np.asarray(age, float)
+        self.duration = np.broadcast_to(np.asarray(duration, float), self.age.shape)
+        self.discount = discount
+        n = self.age.shape[0]
+        self.horizon = np.broadcast_to(
+            np.asarray(model.horizon(self.age, self.duration), float), (n,)
+        )
+        self.fast = _fast_lives(model, self.age, self.duration, discount) if fast else None
+        self._premium_annuities: dict = {}
+
+    def values(self, b: Benefit, premium_term: float | None | bool = False) -> BenefitValues:
+        """E[PV], E[PV²] and the standard deviation per unit of benefit for each life.
+
+        ``premium_term``: False for no premium; None for premiums for life; n for n years.
+        """
+        check_benefit(b, self.discount)
+        _check_reach(self.horizon, b)
+        model, age, duration, horizon, discount = (
+            self.model, self.age, self.duration, self.horizon, self.discount,
+        )
+        if self.fast is not None and _benefit_on_fast_path(b):
+            first, second = _fast_values(self.fast, age.shape[0], b)
+        elif isinstance(b, LifeAnnuity):
+            first, second = _annuity_general(model, age, duration, horizon, b, discount)
+        elif isinstance(b, LifeInsurance):
+            first, second = _insurance_general(model, age, duration, horizon, b, discount)
+        elif isinstance(b, PureEndowment):
+            first, second = _pure_endowment(model, age, duration, b.term, discount)
+        else:
+            z1, z2 = _insurance_general(model, age, duration, horizon, b, discount)
+            e1, e2 = _pure_endowment(model, age, duration, b.term, discount)
+            first, second = z1 + e1, z2 + e2
+        sd = np.sqrt(np.maximum(second - first * first, 0.0))
+        approximation = getattr(b, "approximation", "exact")
+        value = first
+        if approximation != "exact":
+            value = _approximate_value(model, age, duration, horizon, b, discount)
+        out = BenefitValues(
+            value, second, sd, approximation=None if approximation == "exact" else approximation
+        )
+        if premium_term is not False:
+            out.net_premium = value / self.premium_annuity(premium_term)
+        return out
+
+    def premium_annuity(self, premium_term: float | None) -> np.ndarray:
+        """ä_{x:n} (or ä_x): annual premiums in advance while the status survives."""
+        if premium_term is not None and not (
+            premium_term >= 1 and float(premium_term) == math.floor(premium_term)
+        ):
+            raise DomainError(
+                "net_premium.premium_term",
+                f"premium_term must be a whole number of years, at least 1 (got {premium_term!r})",
+            )
+        key = premium_term
+        if key not in self._premium_annuities:
+            premiums = LifeAnnuity(timing="advance", frequency=1, term=premium_term)
+            try:
+                self._premium_annuities[key] = self.values(premiums).value
+            except DomainError as exc:
+                raise exc.within("net_premium") from None
+        return self._premium_annuities[key]
+
+
+def benefit_values(model: LifetimeModel, age, duration, discount: Discount, b: Benefit,
+                   premium_term: float | None | bool = False, fast: bool = True) -> BenefitValues:
+    """One benefit for every life. ``fast=False`` forces the general (reference) path."""
+    return Valuation(model, age, duration, discount, fast).values(b, premium_term)
+
+
+def present_values(model: LifetimeModel, age, duration, discount: Discount,
+                   benefits: Sequence[Benefit],
+                   premium_terms: Sequence[float | None | bool] | None = None,
+                   fast: bool = True) -> list[BenefitValues]:
+    """Every benefit for every life; DomainError fields are ``benefits[i].<field>``."""
+    premium_terms = premium_terms or [False] * len(benefits)
+    valuation = Valuation(model, age, duration, discount, fast)
+    out = []
+    for i, (b, p) in enumerate(zip(benefits, premium_terms)):
+        try:
+            out.append(valuation.values(b, p))
+        except DomainError as exc:
+            if exc.field.startswith("interest"):
+                raise
+            raise exc.within(f"benefits[{i}]") from None
+    return out
+
+
+def payment_count(b: Benefit, horizon: float) -> int:
+    """An upper bound on the payment times (or periods, or nodes / 16) per life, for budgets."""
+    if isinstance(b, PureEndowment):
+        return 1
+    m = int(getattr(b, "frequency", 1))
+    if getattr(b, "timing", "") in ("continuous", "moment-of-death"):
+        m = 2
+    u = getattr(b, "deferral", 0.0)
+    span = horizon - u if b.term is None else min(b.term, max(horizon - u, 0.0))
+    return int(max(span, 1.0) * m) + 1
