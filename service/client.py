@@ -59,10 +59,16 @@ from service.api.schemas import (
     SurvivalRequest,
     SurvivalResponse,
 )
+from service.api.value_schemas import (
+    BenefitResult,
+    PresentValuesRequest,
+    PresentValuesResponse,
+    PresentValuesResult,
+)
 
 __all__ = [
     "AsyncLifetimeClient",
-    "BenefitValue",
+    "BenefitResult",
     "LifetimeClient",
     "LifetimeServiceError",
     "PresentValuesResponse",
@@ -77,36 +83,6 @@ DEFAULT_MAX_BACKOFF = 2.0
 
 #: connection errors after which a request is retried: nothing reached the service
 RETRIED_ERRORS: tuple[type[Exception], ...] = (httpx.ConnectError, httpx.ConnectTimeout)
-
-
-# ---- POST /v1/present-values answers -------------------------------------------------------
-# The request Structs of this endpoint live in service.api.present_values, which imports
-# litestar; the client sends a dict or any msgspec Struct for it and decodes the answer into
-# these Structs (same field names and types as the service's answer Structs).
-
-
-class BenefitValue(msgspec.Struct, frozen=True):
-    """One benefit's present value per unit, with its second moment and standard deviation."""
-
-    value: Union[float, None]
-    second_moment: Union[float, None]
-    standard_deviation: Union[float, None]
-    net_premium: Union[float, None] = None
-    approximation: Union[str, None] = None
-
-
-class PresentValuesResult(msgspec.Struct, frozen=True, kw_only=True):
-    age: Union[float, None] = None
-    duration: Union[float, None] = None
-    ages: Union[list[float], None] = None
-    durations: Union[list[float], None] = None
-    benefits: list[BenefitValue]
-
-
-class PresentValuesResponse(msgspec.Struct, frozen=True):
-    basis: s.BasisReference
-    service_version: str
-    results: list[PresentValuesResult]
 
 
 # ---- the one exception -----------------------------------------------------------------------
@@ -317,7 +293,7 @@ class _Base:
 
     @staticmethod
     def _present_values(request: Any, fields: dict) -> _Call:
-        return _post("/v1/present-values", None, PresentValuesResponse, request, fields)
+        return _post("/v1/present-values", PresentValuesRequest, PresentValuesResponse, request, fields)
 
     @staticmethod
     def _stored_basis(basis_id: str) -> _Call:
@@ -407,8 +383,8 @@ class LifetimeClient(_Base):
 
     def present_values(self, request: Any = None, **fields: Any) -> PresentValuesResponse:
         """POST /v1/present-values: present values, their second moments and standard
-        deviations, and net premiums. The request (a dict, a msgspec Struct or keyword
-        arguments) is checked by the service, not before sending."""
+        deviations, and net premiums. The request (PresentValuesRequest or keyword arguments)
+        is checked before sending, like every calculation."""
         return self._send(self._present_values(request, fields))
 
     # reading bases, operations
