@@ -43,6 +43,14 @@ class Settings(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=
     """How many compiled inline bases to keep (least recently used are dropped)."""
     log_level: LogLevel = "info"
     """Lowest level of log lines written."""
+    auth_token: (
+        Annotated[str, Meta(min_length=16, max_length=4096, pattern=r"^[\x21-\x7e]+$")] | None
+    ) = None
+    """Bearer token every request must carry (except /health and /ready); none: no
+    authentication. Prefer the environment variable, so the token does not show in process
+    listings."""
+    cors_origins: str = ""
+    """Browser origins allowed to call the API (CORS), separated by commas; empty: CORS off."""
 
 
 class SettingsError(ValueError):
@@ -62,6 +70,9 @@ _HELP = {
     "max_body_bytes": "largest request body in bytes",
     "cache_size": "compiled inline bases kept in memory",
     "log_level": "lowest level of log lines: critical, error, warning, info or debug",
+    "auth_token": "bearer token required on every request but /health and /ready; at least 16 "
+    "printable characters; prefer the environment variable, which process listings do not show",
+    "cors_origins": "origins allowed by CORS, separated by commas (empty: CORS off)",
 }
 
 
@@ -94,7 +105,7 @@ def from_environment(environ: Mapping[str, str] | None = None) -> Settings:
         if raw is None:
             continue
         raw = raw.strip()
-        if raw == "" and field == "bases_dir":
+        if raw == "" and field in ("bases_dir", "auth_token"):
             continue
         values[field] = raw.lower() if field == "log_level" else raw
         where[field] = _env_name(field)
@@ -137,8 +148,9 @@ def load(
         if raw is not None:
             values[field] = raw.strip().lower() if field == "log_level" else raw
             where[field] = _option_name(field)
-    if values.get("bases_dir") == "":
-        values["bases_dir"] = None
+    for field in ("bases_dir", "auth_token"):
+        if values.get(field) == "":
+            values[field] = None
     return _convert(values, where)
 
 

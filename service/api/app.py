@@ -15,7 +15,10 @@ from .calculations import REQUEST_TYPES, calculation_handlers
 from .observability import Metrics, observe
 from .openapi import add_request_bodies, openapi_config
 from .operations import operations_handlers
+from .present_values import present_value_handlers
 from .problems import EXCEPTION_HANDLERS
+from .security import cors_config, document_authentication, require_token
+from .value_schemas import REQUEST_TYPES as PRESENT_VALUE_TYPES
 
 
 class LifetimeApp(Litestar):
@@ -43,6 +46,7 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
     app = LifetimeApp(
         route_handlers=[
             *calculation_handlers(settings, catalogue),
+            *present_value_handlers(settings, catalogue),
             *bases_handlers(catalogue),
             *operations_handlers(catalogue, metrics),
         ],
@@ -50,10 +54,13 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
         on_startup=[catalogue.load],
         openapi_config=openapi_config(),
         request_max_body_size=None,  # the calculation handlers enforce max_body_bytes
+        cors_config=cors_config(settings.cors_origins),
         logging_config=None,
         debug=False,
     )
-    add_request_bodies(app, REQUEST_TYPES)
+    add_request_bodies(app, {**REQUEST_TYPES, **PRESENT_VALUE_TYPES})
+    if settings.auth_token is not None:
+        document_authentication(app)
     app.state["settings"] = settings
     app.state["catalogue"] = catalogue
     app.state["metrics"] = metrics
@@ -62,7 +69,7 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
     async def call_litestar(scope: Any, receive: Any, send: Any) -> None:
         await parent_call(app, scope, receive, send)
 
-    app._observed = observe(call_litestar, metrics)
+    app._observed = observe(require_token(call_litestar, settings.auth_token), metrics)
     return app
 
 

@@ -22,6 +22,8 @@ from prometheus_client.registry import Collector
 
 from service.bases.catalogue import Catalogue
 
+from .security import security_headers
+
 access_log = logging.getLogger("service.access")
 
 REQUEST_ID_HEADER = b"x-request-id"
@@ -113,15 +115,10 @@ def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
             if message["type"] == "http.response.start":
                 status = message["status"]
                 status_holder[0] = status
-                headers = [
-                    (k, v)
-                    for k, v in message.get("headers", [])
-                    if not (status >= 400 and k.lower() == b"cache-control")
-                ]
+                headers = security_headers(
+                    list(message.get("headers", [])), status, scope.get("path", "")
+                )
                 headers.append((REQUEST_ID_HEADER, request_id.encode("ascii")))
-                headers.append((b"x-content-type-options", b"nosniff"))
-                if status >= 400:
-                    headers.append((b"cache-control", b"no-store"))
                 message = {**message, "headers": headers}
             await send(message)
 

@@ -32,6 +32,12 @@ PROBLEM_KINDS: dict[str, tuple[int, str, str]] = {
         "A field is missing, has the wrong type, is outside its documented bounds, or is not "
         "a field of this request. Each entry of `errors` names one.",
     ),
+    "unauthorized": (
+        401,
+        "Authentication required",
+        "This service requires the header Authorization: Bearer <token> on every request but "
+        "GET /health and GET /ready.",
+    ),
     "not-found": (404, "Not found", "There is nothing at this path."),
     "unknown-basis": (
         404,
