@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import gc
 from pathlib import Path
 from typing import Any
 
@@ -19,6 +20,14 @@ from .present_values import present_value_handlers
 from .problems import EXCEPTION_HANDLERS
 from .security import cors_config, document_authentication, require_token
 from .value_schemas import REQUEST_TYPES as PRESENT_VALUE_TYPES
+
+
+def _freeze_startup_objects() -> None:
+    """Move everything alive after start-up (modules, compiled stored bases) out of the
+    garbage collector's reach: they live as long as the process, and without this every full
+    collection walks them again, which costs a request tens of microseconds on average."""
+    gc.collect()
+    gc.freeze()
 
 
 class LifetimeApp(Litestar):
@@ -51,7 +60,7 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
             *operations_handlers(catalogue, metrics),
         ],
         exception_handlers=EXCEPTION_HANDLERS,  # type: ignore[arg-type]
-        on_startup=[catalogue.load],
+        on_startup=[catalogue.load, _freeze_startup_objects],
         openapi_config=openapi_config(),
         request_max_body_size=None,  # the calculation handlers enforce max_body_bytes
         cors_config=cors_config(settings.cors_origins),

@@ -7,11 +7,12 @@ headers as any other answer.
 
 from __future__ import annotations
 
+import itertools
 import logging
+import os
 import re
 import sys
 import time
-import uuid
 from collections.abc import Awaitable, Callable, MutableMapping
 from typing import Any
 
@@ -94,12 +95,30 @@ def request_id_from(headers: list[tuple[bytes, bytes]]) -> str:
             if _REQUEST_ID.match(value):
                 return value.decode("ascii")
             break
-    return uuid.uuid4().hex
+    return f"{_ID_PREFIX}{next(_ID_COUNTER):016x}"
+
+
+# A new request id: 64 random bits drawn once per process (so ids of replicas and restarts do
+# not collide), then a counter; no system call per request.
+_ID_PREFIX = os.urandom(8).hex()
+_ID_COUNTER = itertools.count(1)
 
 
 def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
     """Wrap ``app`` with request ids, security headers, metrics and one access-log line."""
     encode = msgspec.json.Encoder().encode
+    # the labelled children of the two metrics, found once per (route, method, status)
+    children: dict[tuple[str, str, int], tuple[Any, Any]] = {}
+
+    def metric_children(route: str, method: str, status: int) -> tuple[Any, Any]:
+        key = (route, method, status)
+        found = children.get(key)
+        if found is None:
+            labels = (route, method, str(status))
+            found = (metrics.requests.labels(*labels), metrics.latency.labels(*labels))
+            if len(children) < 10_000:  # routes are templates, so this stays small
+                children[key] = found
+        return found
 
     async def observed(scope: Scope, receive: Any, send: Any) -> None:
         if scope["type"] != "http":
@@ -129,8 +148,9 @@ def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
             status = status_holder[0]
             route = scope.get("path_template") or "unmatched"
             method = scope.get("method", "")
-            metrics.requests.labels(route, method, str(status)).inc()
-            metrics.latency.labels(route, method, str(status)).observe(elapsed)
+            count, latency = metric_children(route, method, status)
+            count.inc()
+            latency.observe(elapsed)
             if access_log.isEnabledFor(logging.INFO):
                 record = {
                     "event": "request",

@@ -24,7 +24,7 @@ from service.settings import Settings
 from service.version import __version__
 
 from .body import decode, read_body
-from .calculations import CALCULATION_TAG, ERROR_RESPONSES, Calculations, _echo, _reference
+from .calculations import CALCULATION_TAG, ERROR_RESPONSES, Calculations, _echo_columns, _reference
 from .problems import bad_field, domain_problem
 from .value_schemas import (
     MAX_WORK,
@@ -114,7 +114,7 @@ def present_value_handlers(settings: Settings, catalogue: Catalogue) -> list[Any
             for r in found
         ]
         results = []
-        for i, (a, d) in enumerate(zip(age.tolist(), duration.tolist())):
+        for i, (a, d, aa, dd) in enumerate(zip(*_echo_columns(age, duration))):
             items = [
                 BenefitResult(
                     value=_finite(v[i]), second_moment=_finite(m2[i]),
@@ -124,7 +124,9 @@ def present_value_handlers(settings: Settings, catalogue: Catalogue) -> list[Any
                 )
                 for v, m2, sd, p, appr in per_benefit
             ]
-            results.append(PresentValuesResult(**_echo(a, d), benefits=items))
+            results.append(
+                PresentValuesResult(age=a, duration=d, ages=aa, durations=dd, benefits=items)
+            )
         return PresentValuesResponse(_reference(basis), __version__, results)
 
     return [present_values]

@@ -193,6 +193,10 @@ class Law(YearGridModel):
         j = np.floor(age)
         return Located(np.zeros(age.shape, dtype=np.int64), j.astype(np.int64), age - j)
 
+    def _locate_one(self, age: float, duration: float) -> tuple[int, int, float]:
+        j = math.floor(age)
+        return 0, j, age - j
+
     def _year_hazard(self, row, index, f0, f1):
         with np.errstate(over="ignore", invalid="ignore"):
             h = self.hazard(index + f0, np.maximum(f1 - f0, 0.0))

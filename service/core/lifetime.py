@@ -357,6 +357,11 @@ class YearGridModel(LifetimeModel):
     def _locate(self, age, duration) -> Located:
         """The row, whole-age index and fraction of each life."""
 
+    def _locate_one(self, age: float, duration: float) -> tuple[int, int, float]:
+        """``_locate`` for one life, as plain numbers (the scalar fast path)."""
+        loc = self._locate(np.array([age]), np.array([duration]))
+        return int(loc.row[0]), int(loc.index[0]), float(loc.frac[0])
+
     def horizon(self, age, duration):
         age = as_float_array(age)
         duration = np.broadcast_to(as_float_array(duration), age.shape)
@@ -400,11 +405,12 @@ class YearGridModel(LifetimeModel):
         """Lives at whole ages, whole life: four lookups in the per-basis tables."""
         if term is None:
             age = as_float_array(age)
-            duration = np.broadcast_to(as_float_array(duration), age.shape)
+            duration = as_float_array(duration)
+            if duration.shape != age.shape:
+                duration = np.broadcast_to(duration, age.shape)
             if age.size == 1:  # one life: plain float arithmetic on the per-basis tables
-                loc = self._locate(age, duration)
-                r, j = int(loc.row[0]), int(loc.index[0])
-                if loc.frac[0] == 0.0:
+                r, j, frac = self._locate_one(float(age[0]), float(duration[0]))
+                if frac == 0.0:
                     e0, m1 = self.tail_moments[r, j, :2].tolist()
                     k1, k2 = self.curtate_table[r, j, 1:3].tolist()
                     return (

@@ -51,7 +51,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import ComputationLimitError, DomainError, fmt
-from .lifetime import GL_NODES, GL_WEIGHTS, LifetimeModel, YearGridModel, as_float_array
+from .lifetime import GL_NODES, GL_WEIGHTS, LifetimeModel, YearGridModel
 
 #: most payment times (or periods) per life in one benefit
 MAX_PAYMENT_TIMES = 20_000

@@ -66,6 +66,7 @@ def test_request_id_echoed_or_made(client):
     assert r.headers["x-request-id"] == "abc-123.x"
     made = client.get("/health").headers["x-request-id"]
     assert len(made) == 32
+    assert client.get("/health").headers["x-request-id"] != made  # a new id for each request
     for bad in ("has space", "x" * 200, "semi;colon"):
         echoed = client.get("/health", headers={"X-Request-ID": bad}).headers["x-request-id"]
         assert echoed != bad and len(echoed) == 32
