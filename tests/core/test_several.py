@@ -87,7 +87,7 @@ def test_last_survivor_moments_and_force_against_mpmath():
 
     got = last.complete_moments(np.array([[x, y]]), np.zeros((1, 2)), [1, 2, 8])[0]
     for k, value in zip((1, 2, 8), got):
-        ref = k * mpmath.quad(lambda s: s ** (k - 1) * surv(s), [0, 20, 50, 120])
+        ref = k * mpmath.quad(lambda s, k=k: s ** (k - 1) * surv(s), [0, 20, 50, 120])
         assert abs(value / float(ref) - 1) < 1e-9
     # the force from the density: μ = −S'/S, by mpmath's numerical derivative at 30 digits
     s = 12.5

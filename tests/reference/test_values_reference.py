@@ -161,5 +161,5 @@ def test_continuous_values_against_mpmath(kind):
         assert ins.value[0] == pytest.approx(float(_mp_integral(force, hazard, xm, delta, 1)), rel=1e-12)
         assert ins.second_moment[0] == pytest.approx(float(_mp_integral(force, hazard, xm, delta, 2)), rel=1e-12)
         ann = _one(model, x, LifeAnnuity(timing="continuous")).value[0]
-        exact = mpmath.quad(lambda t: mpmath.exp(-delta * t - hazard(xm, t)), [0, 10, 30, 60, 100, 200])
+        exact = mpmath.quad(lambda t, xm=xm: mpmath.exp(-delta * t - hazard(xm, t)), [0, 10, 30, 60, 100, 200])
         assert ann == pytest.approx(float(exact), rel=1e-12)

@@ -79,7 +79,6 @@ def soak(server: Server, seconds: float, clients: int = 8, warm_up: float = 5.0,
     result = SoakResult()
     lock = threading.Lock()
     counter = iter(range(max_requests))
-    phase = {"measure_from": None}
     started = time.monotonic()
     deadline = started + warm_up + seconds
 

@@ -9,8 +9,8 @@ import time
 import httpx
 import pytest
 
-from .soak import report, soak
 from .server import start_server
+from .soak import report, soak
 
 SOAK_SECONDS = float(os.environ.get("SOAK_SECONDS", "30"))
 
