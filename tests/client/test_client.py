@@ -318,3 +318,17 @@ def test_an_answer_of_another_shape_fails_loudly():
             client.expectation(basis="standard-ultimate", lives=[{"age": 60}])
     assert caught.value.type == "client/unexpected-answer"
     assert "ExpectationResponse" in caught.value.detail
+
+
+def test_the_readme_client_example_runs(service, capsys):
+    """The README's client example, run as written against a started server."""
+    import re
+    from pathlib import Path
+
+    readme = (Path(__file__).resolve().parents[2] / "README.md").read_text()
+    code = re.search(r"```python\n(.*?)```", readme, re.S).group(1)
+    exec(compile(code.replace("http://127.0.0.1:8000", service.url), "README.md", "exec"), {})
+    printed = capsys.readouterr().out.splitlines()
+    assert printed[0].startswith("sha256:")
+    assert printed[1].startswith("65.0 ") and printed[2].startswith("70.0 ")
+    assert printed[-1].startswith("422 [('$.basis.A', 'A must be greater than")
