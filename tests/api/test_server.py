@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import json
-import os
-import socket
 import subprocess
 import sys
 import time
@@ -13,20 +11,10 @@ from pathlib import Path
 import httpx
 import pytest
 
+from service.launch import free_port as _free_port
+from service.launch import service_environment as _environment
+
 PROJECT_ROOT = Path(__file__).resolve().parents[2]
-
-
-def _free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
-
-
-def _environment(**extra: str) -> dict[str, str]:
-    env = {k: v for k, v in os.environ.items() if not k.startswith("LIFETIME_")}
-    env["PYTHONPATH"] = str(PROJECT_ROOT) + os.pathsep + env.get("PYTHONPATH", "")
-    env.update(extra)
-    return env
 
 
 @pytest.mark.slow

@@ -18,7 +18,6 @@ import json
 import os
 import re
 import shutil
-import socket
 import statistics
 import subprocess
 import sys
@@ -29,15 +28,11 @@ from pathlib import Path
 import httpx
 import pytest
 
+from service.launch import free_port as _free_port
+
 ROOT = Path(__file__).resolve().parents[2]
 DURATION_S = int(os.environ.get("LOAD_SECONDS", "10"))
 CONNECTIONS = 8
-
-
-def _free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
 
 
 def _start(cmd: list[str], port: int) -> subprocess.Popen:

@@ -9,7 +9,6 @@ from __future__ import annotations
 import json
 import os
 import re
-import socket
 import subprocess
 import sys
 import time
@@ -17,6 +16,8 @@ from pathlib import Path
 
 import httpx
 import pytest
+
+from service.launch import free_port as _free_port
 
 ROOT = Path(__file__).resolve().parents[2]
 DOCKERFILE = (ROOT / "Dockerfile").read_text()
@@ -26,12 +27,6 @@ def _instruction(name: str) -> list[str]:
     """Every line of one instruction, continuation lines joined."""
     text = re.sub(r"\\\n\s*", " ", DOCKERFILE)
     return [line.split(None, 1)[1] for line in text.splitlines() if line.startswith(name + " ")]
-
-
-def _free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
 
 
 def test_dockerfile_shape():
