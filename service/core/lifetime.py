@@ -69,6 +69,33 @@ def shift_moments(moments: np.ndarray, shift: np.ndarray) -> np.ndarray:
     return np.einsum("...ki,...i->...k", coef, moments)
 
 
+def _binomial_pairs(n_mom: int) -> np.ndarray:
+    """W[i, p, r] = binom(i, r) where p + r = i, else 0 (for i, p, r < n_mom)."""
+    w = np.zeros((n_mom, n_mom, n_mom))
+    for i in range(n_mom):
+        for r in range(i + 1):
+            w[i, i - r, r] = BINOM[i, r]
+    return w
+
+
+_PAIRS = [_binomial_pairs(k) for k in range(N_MOM + 1)]
+
+
+def _shifted_sum(weight: np.ndarray, shift: np.ndarray, moments: np.ndarray) -> np.ndarray:
+    """Σₘ wₘ ∫ (aₘ + s)ⁱ g_m(s) ds from Mₘᵣ = ∫ sʳ g_m(s) ds: (N, M), (N, M), (N, M, K) → (N, K).
+
+    Expands (aₘ + s)ⁱ binomially and sums over m first, as one batched matrix product
+    Q[n, p, r] = Σₘ wₘ aₘᵖ Mₘᵣ; every term is non-negative, so nothing cancels.
+    """
+    n_mom = moments.shape[-1]
+    powers = np.empty(shift.shape + (n_mom,))
+    powers[..., 0] = weight
+    for p in range(1, n_mom):
+        powers[..., p] = powers[..., p - 1] * shift
+    q = np.matmul(np.swapaxes(powers, -1, -2), moments)  # (N, K, K)
+    return np.einsum("npr,ipr->ni", q, _PAIRS[n_mom])
+
+
 @dataclass(frozen=True)
 class Located:
     """Lives placed on the year grid: row, whole-age index in the row, fraction of a year."""
@@ -553,9 +580,7 @@ class YearGridModel(LifetimeModel):
                 pieces[idx] = self._year_partial(
                     r[idx[0]], jmc[idx], np.zeros(idx[0].size), length[idx]
                 )
-            pieces = pieces[..., :n_mom]
-            shifted = shift_moments(pieces, t_start)
-            out += np.einsum("nm,nmk->nk", surv, shifted)
+            out += _shifted_sum(surv, t_start, pieces[..., :n_mom])
             if np.all(t_start[:, -1] + 1.0 >= term):
                 break
         return out
