@@ -8,6 +8,7 @@ stops it with a message naming the option or variable (exit status 2).
 from __future__ import annotations
 
 import os
+import signal
 import sys
 from collections.abc import Sequence
 from pathlib import Path
@@ -48,6 +49,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         server_header=False,
         proxy_headers=False,
     )
+    # uvicorn stops gracefully on SIGTERM (in-flight requests finish), then restores the
+    # handler it found and raises the signal again: this handler makes that a clean exit 0
+    signal.signal(signal.SIGTERM, _exit_cleanly)
     if settings.workers == 1:
         uvicorn.run(create_app(settings, catalogue), **common)
     else:
@@ -60,6 +64,10 @@ def main(argv: Sequence[str] | None = None) -> int:
             **common,
         )
     return 0
+
+
+def _exit_cleanly(signum, frame) -> None:
+    sys.exit(0)
 
 
 if __name__ == "__main__":
