@@ -39,6 +39,8 @@ T = TypeVar("T")
 
 #: lives × durations above which the computation runs in a worker thread
 OFFLOAD_VALUES = 20_000
+#: the weight of one row of a status's life table against OFFLOAD_VALUES
+STATUS_ROW_WORK = 1_000
 
 CALCULATION_TAG = "calculations"
 
@@ -332,22 +334,30 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
     )
     async def life_table(request: Request[Any, Any, Any]) -> Response[s.LifeTableResponse]:
         """Columns age, l, d, q, e̊ (complete) and e (curtate) for one life aged `start_age`,
-        at ages start_age, start_age + 1, … up to end_age. Send `Accept: text/csv` for CSV.
+        at ages start_age, start_age + 1, … up to end_age. For a joint-life or last-survivor
+        basis, give `start_ages` (one per member) instead: row k is the status of the members
+        aged start_ages + k (column `ages`), up to the first member's age end_age.
+        Send `Accept: text/csv` for CSV.
         """
         req = await calc.read(request, s.LifeTableRequest)
         basis = await calc.basis(request, req.basis)
-        rows = int(max(req.end_age - req.start_age, 0.0) + 1e-9) + 1
+        start, duration = _life_table_start(req, getattr(basis.model, "n_members", 1))
+        several = isinstance(start, list)
+        first = start[0] if several else start
+        rows = int(max(req.end_age - first, 0.0) + 1e-9) + 1
         if rows > settings.max_durations:
             raise bad_field(
                 "$.end_age",
                 f"a life table may have at most {settings.max_durations} rows "
-                f"(start_age {req.start_age} to end_age {req.end_age} gives {rows})",
+                f"({'start_ages[0]' if several else 'start_age'} {first} to end_age "
+                f"{req.end_age} gives {rows})",
             )
         model = basis.model
+        # a status's rows come from quadrature across its members, far more work than a lookup
+        work = rows * (STATUS_ROW_WORK if several else 10)
         try:
             table = await calc.run(
-                lambda: model.life_table(req.start_age, req.end_age, req.radix, req.duration),
-                rows * 10,
+                lambda: model.life_table(start, req.end_age, req.radix, duration), work
             )
         except DomainError as exc:
             raise _life_table_problem(exc) from None
@@ -362,9 +372,12 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 headers={"X-Basis-Fingerprint": basis.fingerprint},
             )
         result = s.LifeTableResult(
-            start_age=req.start_age,
-            duration=req.duration,
-            age=table["age"].tolist(),
+            start_age=None if several else req.start_age,
+            duration=None if several else req.duration,
+            start_ages=start if several else None,
+            durations=duration if several else None,
+            age=None if several else table["age"].tolist(),
+            ages=table["age"].tolist() if several else None,
             l=_values(table["l"]),
             d=_values(table["d"]),
             q=_values(table["q"]),
@@ -381,6 +394,55 @@ LIFE_TABLE_COLUMNS = ("age", "l", "d", "q", "complete", "curtate")
 _LIFE_FIELDS = {"lives[0].age": "start_age", "lives[0].duration": "duration"}
 
 
+def _life_table_start(req: s.LifeTableRequest, members: int) -> tuple[Any, Any]:
+    """(start_age, duration) of one life, or (start_ages, durations) as lists for a status of
+    ``members`` lives; giving the wrong one, both, or a wrong count is a 422 naming the field."""
+    if req.start_age is not None and req.start_ages is not None:
+        raise bad_field(
+            "$.start_ages",
+            "give start_age (one life) or start_ages (a status of several lives), not both",
+        )
+    if members == 1:
+        for name in ("start_ages", "durations"):
+            if getattr(req, name) is not None:
+                raise bad_field(
+                    f"$.{name}",
+                    f"this basis is of a single life: give start_age (and duration), not {name}",
+                )
+        if req.start_age is None:
+            raise bad_field("$.start_age", "required field is missing")
+        return req.start_age, req.duration
+    if req.start_age is not None:
+        raise bad_field(
+            "$.start_age",
+            f"this basis is a status of {members} lives: give start_ages (one per member), "
+            f"not start_age",
+        )
+    if req.duration != 0.0:
+        raise bad_field(
+            "$.duration",
+            "this basis is a status of several lives: give durations (one per member), "
+            "not duration",
+        )
+    if req.start_ages is None:
+        raise bad_field(
+            "$.start_ages",
+            f"required field is missing: start_ages, one age for each of the {members} members",
+        )
+    if len(req.start_ages) != members:
+        raise bad_field(
+            "$.start_ages",
+            f"must hold {members} ages, one per member of the basis (got {len(req.start_ages)})",
+        )
+    durations = [0.0] * members if req.durations is None else list(req.durations)
+    if len(durations) != members:
+        raise bad_field(
+            "$.durations",
+            f"must hold {members} durations, one per member (got {len(durations)})",
+        )
+    return list(req.start_ages), durations
+
+
 def _life_table_problem(exc: DomainError) -> Problem:
     """The life table's single life is given by start_age and duration: name those."""
     field = _LIFE_FIELDS.get(exc.field, exc.field)
@@ -390,8 +452,13 @@ def _life_table_problem(exc: DomainError) -> Problem:
 def _csv(table: dict[str, np.ndarray]) -> bytes:
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(LIFE_TABLE_COLUMNS)
-    columns = [table[name].tolist() for name in LIFE_TABLE_COLUMNS]
+    header: list[str] = list(LIFE_TABLE_COLUMNS)
+    columns = [table[name].tolist() for name in LIFE_TABLE_COLUMNS[1:]]
+    ages = table["age"]
+    if ages.ndim == 2:  # a status: one age column per member, age_0, age_1, …
+        header[:1] = [f"age_{i}" for i in range(ages.shape[1])]
+    columns[:0] = ages.reshape(ages.shape[0], -1).T.tolist()
+    writer.writerow(header)
     for row in zip(*columns):
         writer.writerow(
             ["" if (v != v or v in (float("inf"), float("-inf"))) else repr(v) for v in row]

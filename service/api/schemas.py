@@ -171,17 +171,26 @@ class QuantilesRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
     ]
 
 
-class LifeTableRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
-    """A life table derived from the basis for one life, from start_age to end_age."""
+class LifeTableRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=True):
+    """A life table derived from the basis for one life, from start_age to end_age; for a
+    joint-life or last-survivor basis, for the status of lives aged start_ages."""
 
     basis: BasisField
-    start_age: Annotated[float, Meta(ge=0, description="the first age of the table")]
+    start_age: Union[
+        Annotated[
+            float,
+            Meta(ge=0, description="the first age of the table (single-life bases; required "
+                 "for them)"),
+        ],
+        None,
+    ] = None
     end_age: Annotated[
         float,
         Meta(
             ge=0,
             description="the last age: rows run at start_age, start_age + 1, … up to end_age "
-            "(at most max_durations rows)",
+            "(at most max_durations rows); with start_ages, the first member's age at the "
+            "last row",
         ),
     ]
     radix: Annotated[float, Meta(gt=0, description="l at start_age")] = 100_000.0
@@ -189,6 +198,32 @@ class LifeTableRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
         float,
         Meta(ge=0, description="years since selection of the life aged start_age (select bases)"),
     ] = 0.0
+    start_ages: Union[
+        Annotated[
+            list[NonNegative],
+            Meta(
+                min_length=2,
+                max_length=8,
+                description="for a joint-life or last-survivor basis (instead of start_age, "
+                "and required for it): the age of each member at the first row, in the order "
+                "of the basis's members; row k is the status of the members aged "
+                "start_ages + k",
+            ),
+        ],
+        None,
+    ] = None
+    durations: Union[
+        Annotated[
+            list[NonNegative],
+            Meta(
+                min_length=2,
+                max_length=8,
+                description="with start_ages: years since selection of each member at the "
+                "first row (default 0)",
+            ),
+        ],
+        None,
+    ] = None
 
 
 # ---- answers ---------------------------------------------------------------------------------
@@ -265,12 +300,29 @@ class QuantilesResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=T
     ]
 
 
-class LifeTableResult(msgspec.Struct, frozen=True):
-    start_age: float
-    duration: float
-    age: Annotated[list[float], Meta(description="ages start_age, start_age + 1, …")]
+class LifeTableResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
+    """One life's table (start_age, duration, age), or a status's (start_ages, durations,
+    ages): then the rows follow the status from its start, l = radix × ₖp of the status,
+    q, e̊ and e are conditional on the status being alive at row k, and d = l q."""
+
+    start_age: Annotated[Union[float, None], Meta(description="the life's first age (single-life bases)")] = None
+    duration: DurationEcho = None
+    start_ages: Annotated[
+        Union[list[float], None],
+        Meta(description="for a joint-life or last-survivor basis: each member's first age"),
+    ] = None
+    durations: AgesEcho = None
+    age: Annotated[
+        Union[list[float], None],
+        Meta(description="ages start_age, start_age + 1, … (single-life bases)"),
+    ] = None
+    ages: Annotated[
+        Union[list[list[float]], None],
+        Meta(description="for a joint-life or last-survivor basis: at each row k, the members' "
+             "ages start_ages + k"),
+    ] = None
     l: Annotated[Values, Meta(description="l_x, with l at start_age equal to the radix")]  # noqa: E741
-    d: Annotated[Values, Meta(description="d_x = l_x − l_{x+1}")]
+    d: Annotated[Values, Meta(description="d_x = l_x q_x (= l_x − l_{x+1} for one life)")]
     q: Annotated[Values, Meta(description="q_x")]
     complete: Annotated[Values, Meta(description="e̊_x")]
     curtate: Annotated[Values, Meta(description="e_x")]

@@ -313,10 +313,13 @@ CROSS_FIELD_RULES: dict[str, tuple[str, ...]] = {
     ),
     "improved": (
         "exactly one of rates and rates_by_year",
-        "base is a single life table (type table, or a rating that keeps it a table)",
+        "base is a life table or a select table (type table or select-table, or a rating "
+        "that keeps it a table)",
         "valuation_year ≥ base_year; rates_by_year.start_year ≤ base_year + 1",
         "every row of rates_by_year.grid has the same length",
-        "a life aged x in valuation_year uses the cohort of whole age floor(x)",
+        "a life aged x in valuation_year uses the cohort of whole age floor(x); on a select "
+        "table, within the select period, the cohort of its selection age x − d and floor(x)",
+        "a rate that reaches 1 (negative rates) is 1 and ends the cohort there",
     ),
     "joint-life": (
         "members are single-life bases; each life gives ages (one per member), not age",

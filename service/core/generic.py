@@ -73,10 +73,6 @@ class GenericModel(LifetimeModel):
 
     # ---- what a subclass may refine --------------------------------------------------------
 
-    def kink_phases(self, age, duration) -> np.ndarray:
-        """(N, K): survival may stop being smooth only at durations phase + k, k ≥ 0."""
-        return self.kink_phase(age, duration)[:, None]
-
     def _count(self, age) -> int:
         return int(np.shape(age)[0])
 

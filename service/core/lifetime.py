@@ -22,6 +22,7 @@ x = j + f adds a partial first year, computed by the model's own within-year sur
 from __future__ import annotations
 
 import math
+import re
 from abc import ABC, abstractmethod
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -280,36 +281,72 @@ class LifetimeModel(ABC):
                 k = np.where((k >= 1.0) & (h_here >= target), k - 1.0, k)
         return k
 
-    def life_table(self, start_age: float, end_age: float, radix: float, duration: float = 0.0):
+    def life_table(self, start_age, end_age: float, radix: float, duration=0.0):
         """A derived life table for one life aged ``start_age`` (duration since selection
-        ``duration``), at ages start_age, start_age + 1, …, up to ``end_age``."""
-        start_age = float(start_age)
+        ``duration``), at ages start_age, start_age + 1, …, up to ``end_age``.
+
+        For a status of several lives, ``start_age`` and ``duration`` hold one value per
+        member: row k is the status of the members aged start_age + k (durations + k), up to
+        the first member's age ``end_age``; ``age`` then has one column per member. The rows
+        follow the status from its start: l is radix × ₖp of the status, q, e̊ and e are
+        conditional on the status being alive at row k (for a last survivor, some members may
+        have died by then), and d = l q, so l_{k+1} = l_k − d_k.
+        """
+        start = np.asarray(start_age, dtype=float)
+        several = start.ndim == 1
+        members = int(getattr(self, "n_members", 1))
+        if several != (members > 1):
+            if several:
+                raise DomainError(
+                    "start_ages",
+                    f"this {self.kind} is of a single life: give start_age, not start_ages",
+                )
+            raise DomainError(
+                "start_age",
+                f"this {self.kind} is a status of {members} lives: give start_ages (one per "
+                f"member), not start_age",
+            )
+        first = float(start[0]) if several else float(start)
         end_age = float(end_age)
-        if not start_age >= 0:
-            raise DomainError("start_age", f"start_age must be at least 0 (got {fmt(start_age)})")
-        if not start_age < self.max_age:
-            raise DomainError("start_age", self._age_message(start_age))
-        if end_age < start_age:
+        if not several:
+            if not first >= 0:
+                raise DomainError("start_age", f"start_age must be at least 0 (got {fmt(first)})")
+            if not first < self.max_age:
+                raise DomainError("start_age", self._age_message(first))
+        if end_age < first:
+            which = "the first member's start age" if several else "start_age"
             raise DomainError(
-                "end_age",
-                f"end_age must be at least start_age {fmt(start_age)} (got {fmt(end_age)})",
+                "end_age", f"end_age must be at least {which} {fmt(first)} (got {fmt(end_age)})"
             )
-        n = int(math.floor(end_age - start_age + 1e-9)) + 1
-        ages = start_age + np.arange(n, dtype=float)
-        if not ages[-1] < self.max_age:
-            raise DomainError(
-                "end_age",
-                f"end_age must be below {fmt(round(self.max_age, 6))} for this {self.kind} "
-                f"(got {fmt(end_age)})",
-            )
-        durations = float(duration) + np.arange(n, dtype=float)
-        self.check_lives(np.array([start_age]), np.array([float(duration)]))
-        surv = self.survival([start_age], [float(duration)], np.arange(n + 1, dtype=float))[0]
+        n = int(math.floor(end_age - first + 1e-9)) + 1
+        k = np.arange(n, dtype=float)
+        if several:
+            start_duration = np.broadcast_to(np.asarray(duration, dtype=float), start.shape)
+            ages = start[None, :] + k[:, None]
+            durations = start_duration[None, :] + k[:, None]
+            self._check_table_rows(ages, durations)
+            surv = self.survival(ages[:1], durations[:1], np.arange(n + 1, dtype=float))[0]
+        else:
+            ages = first + k
+            if not ages[-1] < self.max_age:
+                raise DomainError(
+                    "end_age",
+                    f"end_age must be below {fmt(round(self.max_age, 6))} for this {self.kind} "
+                    f"(got {fmt(end_age)})",
+                )
+            durations = float(duration) + k
+            self.check_lives(np.array([first]), np.array([float(duration)]))
+            surv = self.survival([first], [float(duration)], np.arange(n + 1, dtype=float))[0]
         l_col = radix * surv
-        q_col = self.death(ages, durations, [1.0])[:, 0]
+        if several:
+            # the status followed from its start: for a last survivor the status alive at
+            # row k may have lost members, so its rows come from the starting status itself
+            q_col, complete, curtate = self._status_rows(start, start_duration, surv[:-1])
+        else:
+            q_col = self.death(ages, durations, [1.0])[:, 0]
+            complete = self.complete_expectation(ages, durations)
+            curtate = self.curtate_expectation(ages, durations)
         d_col = l_col[:-1] * q_col  # d = l q, free of the rounding in l_x − l_{x+1}
-        complete = self.complete_expectation(ages, durations)
-        curtate = self.curtate_expectation(ages, durations)
         return {
             "age": ages,
             "l": l_col[:-1],
@@ -318,6 +355,65 @@ class LifetimeModel(ABC):
             "complete": complete,
             "curtate": curtate,
         }
+
+    def _status_rows(self, start, duration, surv):
+        """q, e̊ and e at rows k = 0, 1, … of a status followed from its start ages: each is
+        conditional on the status being alive at k (not on every member being alive), so
+        l_{k+1} = l_k (1 − q_k) for every status. With S(t) the status's survival from the
+        start: q_k = 1 − S(k+1)/S(k) from the hazard over [k, k+1]; e̊_k = ∫_k^∞ S / S(k)
+        from per-year integrals; e_k = Σ_{j≥1} S(k+j) / S(k). All sums are of positive terms."""
+        a, d = start[None, :], np.asarray(duration, float)[None, :]
+        n = surv.size
+        k = np.arange(n, dtype=float)
+        q = self.deferred_death(a, d, k, 1.0)[0] / surv
+        years = int(math.ceil(min(float(self.horizon(a, d)[0]), MAX_HORIZON)))
+        years = max(years, n)
+        per_year = self.year_integrals(a, d, years)
+        tail = np.cumsum(per_year[::-1])[::-1]
+        whole = self.survival(a, d, np.arange(1, years + 1, dtype=float))[0]
+        later = np.concatenate([np.cumsum(whole[::-1])[::-1], [0.0]])  # Σ_{i ≥ k+1} S(i)
+        return q, tail[:n] / surv, later[:n] / surv
+
+    def year_integrals(self, age, duration, years: int) -> np.ndarray:
+        """∫_j^{j+1} ₜp dt for j < years, for one life (or status), by 16-point Gauss–Legendre
+        on the panels between consecutive kinks of its survival function (exact to rounding
+        on each smooth piece)."""
+        phases = np.atleast_1d(np.asarray(self.kink_phases(age, duration), float)[0])
+        kinks = (phases[:, None] + np.arange(years + 1)[None, :]).ravel()
+        edges = np.unique(np.concatenate([np.arange(years + 1.0), kinks[kinks < years]]))
+        lo, width = edges[:-1], np.diff(edges)
+        t = (lo[:, None] + width[:, None] * GL_NODES[None, :]).ravel()
+        w = (width[:, None] * GL_WEIGHTS[None, :]).ravel()
+        with np.errstate(over="ignore", invalid="ignore"):
+            h = self.cumulative_hazard(age, duration, t)[0]
+        s = np.where(np.isfinite(h), np.exp(-h), 0.0) * w
+        per_panel = s.reshape(lo.size, -1).sum(axis=1)
+        return np.bincount(np.floor(lo).astype(np.int64), weights=per_panel, minlength=years)[:years]
+
+    def kink_phases(self, age, duration) -> np.ndarray:
+        """(N, K): the phases of every kink family of each life (one for a single life)."""
+        return self.kink_phase(age, duration)[:, None]
+
+    def _check_table_rows(self, ages, durations) -> None:
+        """The rows of a status's life table (ages (n, m)) are lives of the basis: an error in
+        row 0 names start_ages or durations, one in a later row names end_age."""
+        try:
+            self.check_lives(ages[:1], durations[:1])
+        except DomainError as exc:
+            field = exc.field.replace("lives[0].ages", "start_ages")
+            field = field.replace("lives[0].durations", "durations")
+            raise DomainError("start_ages" if field == "lives" else field, exc.message) from None
+        try:
+            self.check_lives(ages, durations)
+        except DomainError as exc:
+            found = re.match(r"lives\[(\d+)\]", exc.field)
+            row = int(found.group(1)) if found else ages.shape[0] - 1
+            raise DomainError(
+                "end_age",
+                f"at row {row}, the members aged {', '.join(fmt(a) for a in ages[row])}: "
+                f"{exc.message}; end_age (the first member's age at the last row) must be "
+                f"below {fmt(ages[row, 0])}",
+            ) from None
 
 
 _FIRST_TWO = (1, 2)

@@ -173,10 +173,3 @@ class SeveralLives(GenericModel):
         if self.lam > 0.0:
             out = np.minimum(out, NEGLIGIBLE_HAZARD / self.lam)
         return np.minimum(out, MAX_HORIZON)
-
-    def life_table(self, start_age, end_age, radix, duration=0.0):
-        raise DomainError(
-            "start_age",
-            f"a life table follows one life from one start age; this basis is a {self.kind} "
-            f"of {self.n_members} lives: use the other endpoints with lives given by ages",
-        )

@@ -19,6 +19,8 @@ An age shift is exact delegation (every quantity of the base at age x + s).
 
 Improvement (:func:`improved`) is generational: one table row per whole valuation age (a
 cohort), row j holding q_{j+k}(base year) × Π_{y = base_year+1}^{valuation_year+k} (1 − r(j+k, y)).
+A select table has one such row per selection age and whole valuation age within the select
+period (the select rates, then the ultimate ones), and one per whole age of the ultimate rates.
 """
 
 from __future__ import annotations
@@ -31,7 +33,7 @@ import numpy as np
 from .errors import ComputationLimitError, DomainError, fmt
 from .generic import NEGLIGIBLE_HAZARD, GenericModel, check_single_life, negligible_horizon
 from .lifetime import MAX_HORIZON, LifetimeModel, as_float_array
-from .tables import TableSet
+from .tables import SelectTable, TableSet
 
 #: the order in which the parts of a rating are applied (echoed by GET /v1/laws)
 RATING_ORDER = (
@@ -45,6 +47,8 @@ RATING_ORDER = (
 
 #: the longest table (rates) that can be improved: one row per cohort makes L² values
 MAX_IMPROVED_RATES = 300
+#: the most rates an improved table keeps in all (cohorts × the longest cohort's rates)
+MAX_IMPROVED_VALUES = MAX_IMPROVED_RATES * MAX_IMPROVED_RATES
 
 
 # ---- tables with modified rates -----------------------------------------------------------
@@ -435,17 +439,89 @@ class CohortTable(TableSet):
         return np.clip(r, 0, self.row_start.size - 1).astype(np.int64)
 
 
-def improvement_factors(
-    ages: np.ndarray, calendar_last: np.ndarray, base_year: int, rate_of
+class SelectCohortTable(TableSet):
+    """An improved select table: one row per (selection age, whole valuation age in the select
+    period), then one per whole valuation age of the ultimate rates.
+
+    A life aged x with duration d < n since selection was selected at s = x − d (a whole age,
+    as in the select table) and uses the row of (s, floor(x)); a life with d ≥ n uses the
+    ultimate row of floor(x). Row (s, j) holds q_[s]+(j−s)+k (ultimate rates after the select
+    period) for the cohort aged j in the valuation year; rows are checked and chosen exactly
+    as the select table chooses its own.
+    """
+
+    kind = "improved select table"
+
+    def _row_of(self, age, duration):
+        base = self.select_base
+        age = np.nan_to_num(np.asarray(age, float), nan=0.0)
+        duration = np.broadcast_to(np.nan_to_num(np.asarray(duration, float), nan=0.0), age.shape)
+        n, n_sel = base.select_period, base.n_select_rows
+        sel = np.rint(age - duration) - base.start_age
+        in_select = (duration < n) & (sel >= 0) & (sel < n_sel)
+        whole = np.floor(age)
+        select_row = np.clip(sel, 0, n_sel - 1) * n + np.clip(
+            whole - (base.start_age + np.clip(sel, 0, n_sel - 1)), 0, n - 1
+        )
+        ultimate_row = n_sel * n + np.clip(
+            whole - base.ultimate_start_age, 0, self.row_start.size - n_sel * n - 1
+        )
+        return np.where(in_select, select_row, ultimate_row).astype(np.int64)
+
+    def _check_rows(self, age, duration) -> None:
+        self.select_base._check_rows(age, duration)
+
+
+def _cohort_factors(
+    first_age: int, n_ages: int, n_years: int, base_year: int, valuation_year: int, rate_of
 ) -> np.ndarray:
-    """Π_{y = base_year+1}^{last} (1 − r(age, y)) for each (age, last) pair."""
-    out = np.ones(np.broadcast(ages, calendar_last).shape)
-    ages_b, last_b = np.broadcast_arrays(ages, calendar_last)
-    top = int(np.max(last_b)) if last_b.size else base_year
-    for year in range(base_year + 1, top + 1):
-        active = last_b >= year
-        out = np.where(active, out * (1.0 - rate_of(ages_b, year)), out)
+    """F[a, k] = Π_{y = base_year+1}^{valuation_year+k} (1 − r(first_age + a, y)): the factor
+    of whole age first_age + a in calendar year valuation_year + k, one call of ``rate_of``
+    per calendar year for every age at once, multiplied in year order."""
+    ages = first_age + np.arange(n_ages)
+    running = np.ones(n_ages)
+    for year in range(base_year + 1, valuation_year + 1):
+        running = running * (1.0 - rate_of(ages, year))
+    out = np.empty((n_ages, max(n_years, 1)))
+    out[:, 0] = running
+    for k in range(1, n_years):
+        running = running * (1.0 - rate_of(ages, valuation_year + k))
+        out[:, k] = running
     return out
+
+
+def _cohort_rows(base: TableSet, cohorts, base_year: int, valuation_year: int, rate_of):
+    """The improved rates of each cohort ``(source row, first index)`` of ``base``: the rates
+    of the source row from that index on, age by age × the cohort's factors; a closing rate
+    of 1 stays 1, and a rate that negative improvement takes to 1 or above is 1 and closes
+    the cohort's row there."""
+    starts = [int(base.row_start[r]) + i for r, i in cohorts]
+    lengths = [int(base.row_length[r]) - i for r, i in cohorts]
+    first = min(starts)
+    top = max(s + n for s, n in zip(starts, lengths))
+    factors = _cohort_factors(
+        first, top - first, max(lengths), base_year, valuation_year, rate_of
+    )
+    rows = []
+    for (r, i), start, length in zip(cohorts, starts, lengths):
+        k = np.arange(length)
+        q = base.q[r, i : i + length]
+        rates = np.minimum(np.where(q >= 1.0, 1.0, q * factors[start - first + k, k]), 1.0)
+        rows.append((start, rates[: int(np.argmax(rates >= 1.0)) + 1]))
+    return rows
+
+
+def _check_improvement_size(base: TableSet, cohorts) -> None:
+    """Each cohort is a row of its own, padded to the longest: bound the values kept."""
+    longest = max(int(base.row_length[r]) - i for r, i in cohorts)
+    values = len(cohorts) * longest
+    if values > MAX_IMPROVED_VALUES:
+        raise DomainError(
+            "base",
+            f"improvement keeps one row per cohort ({len(cohorts)} here, the longest holding "
+            f"{longest} rates), so at most {MAX_IMPROVED_VALUES:,} rates in all "
+            f"(this base needs {values:,}); use fewer selection ages or a shorter table",
+        )
 
 
 def improved(
@@ -453,39 +529,52 @@ def improved(
     base_year: int,
     valuation_year: int,
     rate_of,
-) -> CohortTable:
-    """The generational table: ``rate_of(ages, year)`` gives r for whole ages in a year."""
+) -> TableSet:
+    """The generational table: ``rate_of(ages, year)`` gives r for whole ages in a year.
+
+    A life table gives a :class:`CohortTable`, a select table a :class:`SelectCohortTable`.
+    """
     check_single_life(base, "base")
-    if not isinstance(base, TableSet) or base.row_start.size != 1:
+    select = isinstance(base, SelectTable)
+    if not isinstance(base, TableSet) or not (select or base.row_start.size == 1):
         raise DomainError(
             "base",
-            "improvement applies to the rates of a single life table (type table, or a "
-            f"rating of one that keeps it a table); this base is a {base.kind}",
+            "improvement applies to the rates of a life table or a select table (type table "
+            "or select-table, or a rating of one that keeps it a table); this base is a "
+            f"{base.kind}",
         )
     if valuation_year < base_year:
         raise DomainError(
             "valuation_year",
             f"valuation_year must be at least base_year {base_year} (got {valuation_year})",
         )
-    length = int(base.row_length[0])
-    if length > MAX_IMPROVED_RATES:
-        raise DomainError(
-            "base",
-            f"improvement keeps one row per cohort, so the base table may hold at most "
-            f"{MAX_IMPROVED_RATES} rates (it holds {length})",
-        )
-    start = int(base.row_start[0])
-    q = base.q[0, :length]
-    rows = []
-    for r in range(length):
-        k = np.arange(length - r)
-        ages = start + r + k
-        factors = improvement_factors(ages, valuation_year + k, base_year, rate_of)
-        rates = q[r:] * factors
-        rates = np.where(q[r:] >= 1.0, 1.0, rates)
-        rows.append((start + r, rates))
-    model = CohortTable(rows, base.assumption)
-    model.first_age = start
-    model.limiting_age = float(base.row_limit[0])
+    if not select:
+        length = int(base.row_length[0])
+        if length > MAX_IMPROVED_RATES:
+            raise DomainError(
+                "base",
+                f"improvement keeps one row per cohort, so the base table may hold at most "
+                f"{MAX_IMPROVED_RATES} rates (it holds {length})",
+            )
+        rows = _cohort_rows(base, [(0, i) for i in range(length)], base_year, valuation_year, rate_of)
+        model: TableSet = CohortTable(rows, base.assumption)
+        model.first_age = int(base.row_start[0])
+        model.limiting_age = float(base.row_limit[0])
+        model.max_age = model.limiting_age
+        return model
+    assert isinstance(base, SelectTable)
+    n, n_sel = base.select_period, base.n_select_rows
+    ultimate = n_sel  # the last row of a select table holds the ultimate rates
+    # a select row that closes within the select period (a rated rate of 1) has fewer cohorts;
+    # the rows kept stay at (s, j) = s·n + (j − s), so a short row repeats its last cohort
+    cohorts = [
+        (r, min(i, int(base.row_length[r]) - 1)) for r in range(n_sel) for i in range(n)
+    ]
+    cohorts += [(ultimate, i) for i in range(int(base.row_length[ultimate]))]
+    _check_improvement_size(base, cohorts)
+    rows = _cohort_rows(base, cohorts, base_year, valuation_year, rate_of)
+    model = SelectCohortTable(rows, base.assumption)
+    model.select_base = base
+    model.limiting_age = float(np.max(model.row_limit))
     model.max_age = model.limiting_age
     return model

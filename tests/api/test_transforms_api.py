@@ -99,3 +99,126 @@ def test_laws_list_the_transforms_and_the_rating_order(client):
     for kind in ("adjusted", "improved", "joint-life", "last-survivor"):
         assert kind in laws
     assert any("order of application" in rule for rule in laws["adjusted"]["rules"])
+
+
+def test_improved_select_table_through_the_api(client, assert_problem):
+    basis = {
+        "type": "improved",
+        "base": "thistlemoor-2024-select",
+        "base_year": 2024,
+        "valuation_year": 2030,
+        "rates": {"start_age": 0, "values": [0.0]},
+    }
+    lives = [{"age": 45, "duration": 0}, {"age": 46.5, "duration": 1.5}, {"age": 70.25, "duration": 5}]
+    a = _post(client, "/v1/expectation", {"basis": basis, "lives": lives}).json()["results"]
+    b = _post(client, "/v1/expectation", {"basis": "thistlemoor-2024-select", "lives": lives}).json()["results"]
+    for ra, rb in zip(a, b):  # zero rates: the select table itself
+        assert ra["complete"] == pytest.approx(rb["complete"], rel=1e-13)
+        assert ra["curtate"] == pytest.approx(rb["curtate"], rel=1e-13)
+    improving = {**basis, "rates": {"start_age": 0, "values": [0.01]}}
+    c = _post(client, "/v1/expectation", {"basis": improving, "lives": lives}).json()["results"]
+    assert all(rc["complete"] > rb["complete"] for rc, rb in zip(c, b))  # lighter mortality
+    r = _post(client, "/v1/life-table", {"basis": improving, "start_age": 45, "end_age": 50, "duration": 1})
+    assert r.status_code == 200 and all(math.isfinite(v) for v in r.json()["results"][0]["q"])
+    # the select table's own rules for lives carry over: selected at 44.5 is no selection age
+    r = _post(client, "/v1/expectation", {"basis": improving, "lives": [{"age": 45, "duration": 0.5}]})
+    assert_problem(r, 422, "outside-domain", ["$.lives[0].duration"])
+
+
+JOINT = {
+    "type": "joint-life",
+    "members": ["thistlemoor-2024-male", {"type": "adjusted", "base": "thistlemoor-2024-female", "force_multiplier": 1.25}],
+}
+LAST = {**JOINT, "type": "last-survivor"}
+
+
+@pytest.mark.parametrize("basis", [JOINT, LAST], ids=["joint-life", "last-survivor"])
+def test_status_life_table(client, basis):
+    body = {"basis": basis, "start_ages": [65, 62], "end_age": 75, "radix": 1000}
+    r = _post(client, "/v1/life-table", body)
+    assert r.status_code == 200, r.text
+    result = r.json()["results"][0]
+    assert result["start_ages"] == [65.0, 62.0] and result["durations"] == [0.0, 0.0]
+    assert "age" not in result and "start_age" not in result
+    assert result["ages"] == [[65.0 + k, 62.0 + k] for k in range(11)]
+    # textbook identities under independence: l_k = radix ₖp_x ₖp_y (joint life), and
+    # radix (ₖp_x + ₖp_y − ₖp_x ₖp_y) (last survivor), from each member's own survival
+    t = list(range(11))
+    px = _post(client, "/v1/survival", {"basis": basis["members"][0], "lives": [{"age": 65}], "t": t}).json()["results"][0]["survival"]
+    py = _post(client, "/v1/survival", {"basis": basis["members"][1], "lives": [{"age": 62}], "t": t}).json()["results"][0]["survival"]
+    for k in t:
+        status = px[k] * py[k] if basis is JOINT else px[k] + py[k] - px[k] * py[k]
+        assert result["l"][k] == pytest.approx(1000 * status, rel=1e-12)
+        assert result["d"][k] == pytest.approx(result["l"][k] * result["q"][k], rel=1e-15)
+    # e̊ and e of the status at row 0 are the /v1/expectation answer for the same lives
+    e = _post(client, "/v1/expectation", {"basis": basis, "lives": [{"ages": [65, 62]}]}).json()["results"][0]
+    assert result["complete"][0] == pytest.approx(e["complete"], rel=1e-12)
+    assert result["curtate"][0] == pytest.approx(e["curtate"], rel=1e-12)
+    # the rows follow the status from its start: l_{k+1} = l_k − d_k
+    for k in t[:-1]:
+        assert result["l"][k + 1] == pytest.approx(result["l"][k] - result["d"][k], rel=1e-12)
+    e5 = _post(client, "/v1/expectation", {"basis": basis, "lives": [{"ages": [70, 67]}]}).json()["results"][0]
+    if basis is JOINT:
+        # both members alive at row 5: the answer for the lives aged 70 and 67
+        assert result["complete"][5] == pytest.approx(e5["complete"], rel=1e-12)
+    else:
+        # inclusion–exclusion (textbook identity under independence):
+        # e̊ at row 5 = (₅p_x e̊_70 + ₅p_y e̊_67 − ₅p_x ₅p_y e̊_{70:67}) / ₅p_{x̄ȳ}
+        def single(member, age):
+            return _post(client, "/v1/expectation", {"basis": member, "lives": [{"age": age}]}).json()["results"][0]["complete"]
+
+        joint5 = _post(client, "/v1/expectation", {"basis": {**JOINT, "members": basis["members"]}, "lives": [{"ages": [70, 67]}]}).json()["results"][0]["complete"]
+        tail = px[5] * single(basis["members"][0], 70) + py[5] * single(basis["members"][1], 67) - px[5] * py[5] * joint5
+        assert result["complete"][5] == pytest.approx(tail / (px[5] + py[5] - px[5] * py[5]), rel=1e-10)
+
+
+def test_status_life_table_as_csv_with_durations(client):
+    basis = {"type": "joint-life", "members": ["thistlemoor-2024-select", "thistlemoor-2024-female"]}
+    body = {"basis": basis, "start_ages": [41, 38], "durations": [1, 0], "end_age": 44}
+    r = client.post("/v1/life-table", json=body, headers={"Accept": "text/csv"})
+    assert r.status_code == 200 and r.headers["content-type"].startswith("text/csv")
+    lines = r.text.splitlines()
+    assert lines[0] == "age_0,age_1,l,d,q,complete,curtate"
+    result = _post(client, "/v1/life-table", body).json()["results"][0]
+    assert result["durations"] == [1.0, 0.0]
+    assert len(lines) == 5
+    for k, line in enumerate(lines[1:]):
+        cells = [float(v) for v in line.split(",")]
+        assert cells[:2] == result["ages"][k]
+        assert cells[2:] == [result[c][k] for c in ("l", "d", "q", "complete", "curtate")]
+    # the select member, selected at 40, moves along its select row: e̊ at row 0 is the
+    # status answer for the lives given with the same durations
+    e = _post(client, "/v1/expectation", {"basis": basis, "lives": [{"ages": [41, 38], "durations": [1, 0]}]}).json()["results"][0]
+    assert result["complete"][0] == pytest.approx(e["complete"], rel=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("body", "field"),
+    [
+        ({"basis": JOINT, "start_age": 65, "start_ages": [65, 62], "end_age": 70}, "$.start_ages"),
+        ({"basis": JOINT, "start_age": 65, "end_age": 70}, "$.start_age"),
+        ({"basis": JOINT, "end_age": 70}, "$.start_ages"),
+        ({"basis": JOINT, "start_ages": [65, 62, 60], "end_age": 70}, "$.start_ages"),
+        ({"basis": JOINT, "start_ages": [65, 62], "durations": [0, 0, 0], "end_age": 70}, "$.durations"),
+        ({"basis": JOINT, "start_ages": [65, 62], "duration": 1, "end_age": 70}, "$.duration"),
+        ({"basis": JOINT, "start_ages": [65, 62], "end_age": 60}, "$.end_age"),
+        ({"basis": JOINT, "start_ages": [65, 130], "end_age": 70}, "$.start_ages[1]"),
+        ({"basis": JOINT, "start_ages": [65, 62], "end_age": 125}, "$.end_age"),
+        ({"basis": JOINT, "start_ages": [65, 62], "end_age": 5000}, "$.end_age"),
+        ({"basis": {"type": "joint-life", "members": ["thistlemoor-2024-select", G]}, "start_ages": [41, 38], "durations": [0.5, 0], "end_age": 44}, "$.durations[0]"),
+        ({"basis": G, "start_ages": [65, 62], "end_age": 70}, "$.start_ages"),
+        ({"basis": G, "start_age": 65, "durations": [0, 0], "end_age": 70}, "$.durations"),
+        ({"basis": G, "end_age": 70}, "$.start_age"),
+    ],
+)
+def test_status_life_table_errors(client, assert_problem, body, field):
+    r = _post(client, "/v1/life-table", body)
+    assert_problem(r, 422, "outside-domain", [field])
+    assert "NaN" not in r.text and "Infinity" not in r.text
+
+
+def test_status_life_table_schema_errors(client, assert_problem):
+    r = _post(client, "/v1/life-table", {"basis": JOINT, "start_ages": [65], "end_age": 70})
+    assert_problem(r, 400, "invalid-request", ["$.start_ages"])
+    r = _post(client, "/v1/life-table", {"basis": JOINT, "start_ages": [65, -1], "end_age": 70})
+    assert_problem(r, 400, "invalid-request", ["$.start_ages[1]"])

@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 
 from service.core import laws, tables
+from service.core.errors import DomainError
 from service.core.several import SeveralLives
 from service.core.transforms import rated
 
@@ -102,3 +103,75 @@ def test_batch_equals_one_by_one_and_term():
         assert np.allclose(joint.complete_moments(PAIRS[i : i + 1], Z[i : i + 1], [1, 2], term=20)[0], batch[i], rtol=1e-14)
     # E[min(T, n)] ≤ n and the term-1 value is ∫₀¹ ₜp dt (mpmath)
     assert np.all(batch[:, 0] <= 20.0)
+
+
+@pytest.mark.parametrize("joint", [True, False])
+def test_status_life_table_against_member_survivals(joint):
+    t1 = _table("udd")
+    # an invented select member: 2-year select period for selection ages 30..40
+    ult = list(np.linspace(0.002, 0.5, 70)) + [1.0]  # ages 30..100
+    select = tables.SelectTable(30, [[0.6 * ult[s], 0.8 * ult[s + 1]] for s in range(11)], 30, ult, "udd")
+    status = SeveralLives([t1, select], joint=joint)
+    start, durations, radix = np.array([40.0, 36.5]), np.array([0.0, 0.5]), 1000.0
+    out = status.life_table(start, 55.0, radix, durations)
+    k = np.arange(16.0)
+    assert out["age"].shape == (16, 2) and np.array_equal(out["age"], start + k[:, None])
+    px = t1.survival([40.0], [0.0], k)[0]
+    py = select.survival([36.5], [0.5], k)[0]
+    # textbook identities under independence: ₖp_xy = ₖp_x ₖp_y, ₖp_{x̄ȳ} = ₖp_x + ₖp_y − ₖp_xy
+    expected_l = radix * (px * py if joint else px + py - px * py)
+    assert np.allclose(out["l"], expected_l, rtol=1e-13, atol=0)
+    # the rows follow the status from its start, so the columns add up for both statuses
+    assert np.allclose(out["l"][1:], out["l"][:-1] - out["d"][:-1], rtol=1e-12, atol=0)
+    ax, ay = 40.0 + k, 36.5 + k
+    rows = np.stack([ax, ay], axis=1)
+    durs = np.stack([0 * k, 0.5 + k], axis=1)
+    both = SeveralLives([t1, select], joint=True)
+    if joint:
+        # the joint status is alive at row k only with both members alive at x + k, y + k:
+        # q = 1 − (1 − q_x)(1 − q_y) and e̊, e are the status's own at the row's ages
+        qx = t1.death(ax, 0 * k, [1.0])[:, 0]
+        qy = select.death(ay, 0.5 + k, [1.0])[:, 0]
+        assert np.allclose(out["q"], 1 - (1 - qx) * (1 - qy), rtol=1e-12, atol=0)
+        for i in (0, 7, 15):
+            assert out["complete"][i] == pytest.approx(status.complete_expectation(rows[i : i + 1], durs[i : i + 1])[0], rel=1e-12)
+            assert out["curtate"][i] == pytest.approx(status.curtate_expectation(rows[i : i + 1], durs[i : i + 1])[0], rel=1e-12)
+    else:
+        # the last survivor alive at row k may have lost a member: by inclusion–exclusion
+        # (textbook identity under independence) ∫_k^∞ ₜp_{x̄ȳ} dt =
+        # ₖp_x e̊_{x+k} + ₖp_y e̊_{y+k} − ₖp_x ₖp_y e̊_{x+k:y+k}, and likewise for e
+        sx, sy = px, py
+        ex = t1.complete_expectation(ax, 0 * k)
+        ey = select.complete_expectation(ay, 0.5 + k)
+        exy = both.complete_expectation(rows, durs)
+        identity = (sx * ex + sy * ey - sx * sy * exy) / (sx + sy - sx * sy)
+        assert _rel(out["complete"], identity) < 1e-10
+        cx = t1.curtate_expectation(ax, 0 * k)
+        cy = select.curtate_expectation(ay, 0.5 + k)
+        cxy = both.curtate_expectation(rows, durs)
+        identity = (sx * cx + sy * cy - sx * sy * cxy) / (sx + sy - sx * sy)
+        assert _rel(out["curtate"], identity) < 1e-10
+        # row 0 is the status itself
+        assert out["complete"][0] == pytest.approx(status.complete_expectation(rows[:1], durs[:1])[0], rel=1e-12)
+
+
+def test_status_life_table_errors_name_the_field():
+    status = SeveralLives([_table("udd"), G], joint=True)  # the table's limiting age is 101
+    with pytest.raises(DomainError) as err:
+        status.life_table(np.array([101.0, 60.0]), 102.0, 1.0)
+    assert err.value.field == "start_ages[0]"
+    with pytest.raises(DomainError) as err:
+        status.life_table(np.array([60.0, 40.0]), 105.0, 1.0)  # member 0 reaches 101 at row 41
+    assert err.value.field == "end_age" and "row 41" in err.value.message
+    with pytest.raises(DomainError) as err:
+        status.life_table(np.array([60.0, 55.0]), 50.0, 1.0)
+    assert err.value.field == "end_age"
+    with pytest.raises(DomainError) as err:
+        status.life_table(60.0, 70.0, 1.0)
+    assert err.value.field == "start_age" and "start_ages" in err.value.message
+    with pytest.raises(DomainError) as err:
+        G.life_table(np.array([60.0, 55.0]), 70.0, 1.0)
+    assert err.value.field == "start_ages"
+    with pytest.raises(DomainError) as err:
+        status.life_table(np.array([60.0, 55.0, 50.0]), 70.0, 1.0)
+    assert err.value.field == "start_ages"

@@ -159,3 +159,108 @@ def test_zero_improvement_reproduces_the_base_table():
         ages = np.array([50.0, 55.5, 70.25])
         assert _rel(model.complete_moments(ages, np.zeros(3), [1, 2]), table.complete_moments(ages, np.zeros(3), [1, 2])) < 1e-13
         assert _rel(model.survival(ages, np.zeros(3), [1.0, 7.5]), table.survival(ages, np.zeros(3), [1.0, 7.5])) < 1e-14
+
+
+# an invented select-and-ultimate table: selection ages 60 and 61, a 2-year select period,
+# ultimate rates from age 60 (the select rows continue into q_62… and q_63…)
+SELECT_ROWS = [[0.05, 0.10], [0.06, 0.12]]
+ULTIMATE = [0.04, 0.08, 0.2, 0.3, 0.5, 1.0]  # ages 60..65
+IMPROVEMENT = {60: 0.10, 61: 0.05, 62: 0.02, 63: 0.01}  # 0 from age 64
+
+
+def _select_table(assumption="udd"):
+    return tables.SelectTable(60, SELECT_ROWS, 60, ULTIMATE, assumption)
+
+
+def _by_age(ages, year):
+    return np.array([IMPROVEMENT.get(int(a), 0.0) for a in np.ravel(ages)]).reshape(np.shape(ages))
+
+
+def test_improvement_of_a_select_table_hand_computed_cohort():
+    model = improved(_select_table(), 2020, 2022, _by_age)
+    # hand-computed, life selected at 60 and aged 60 in 2022 (base year 2020):
+    #   age 60 in 2022: q_[60]   × (1 − 0.10)² = 0.05 × 0.81        = 0.0405
+    #   age 61 in 2023: q_[60]+1 × (1 − 0.05)³ = 0.10 × 0.857375    = 0.0857375
+    #   age 62 in 2024: q_62     × (1 − 0.02)⁴ = 0.2  × 0.92236816  = 0.184473632
+    q = [0.0405, 0.0857375, 0.184473632]
+    cohort = model.survival([60.0], [0.0], [1.0, 2.0, 3.0])[0]
+    assert cohort[0] == pytest.approx(1 - q[0], rel=1e-14)
+    assert cohort[1] == pytest.approx((1 - q[0]) * (1 - q[1]), rel=1e-14)
+    assert cohort[2] == pytest.approx((1 - q[0]) * (1 - q[1]) * (1 - q[2]), rel=1e-14)
+    # hand-computed, life selected at 60 and aged 61 in 2022 (duration 1): another cohort
+    #   age 61 in 2022: q_[60]+1 × (1 − 0.05)² = 0.10 × 0.9025      = 0.09025
+    #   age 62 in 2023: q_62     × (1 − 0.02)³ = 0.2  × 0.941192    = 0.1882384
+    #   age 63 in 2024: q_63     × (1 − 0.01)⁴ = 0.3  × 0.96059601  = 0.288178803
+    q1 = [0.09025, 0.1882384, 0.288178803]
+    later = model.survival([61.0], [1.0], [1.0, 2.0, 3.0])[0]
+    assert later == pytest.approx(np.cumprod([1 - v for v in q1]), rel=1e-14)
+    # hand-computed, life selected at 61 and aged 61 in 2022: q_[61] × 0.95² = 0.06 × 0.9025
+    assert model.death([61.0], [0.0], [1.0])[0, 0] == pytest.approx(0.05415, rel=1e-14)
+    # the closing rate of 1 stays 1: no one selected at 60 survives past age 65 (UDD)
+    assert model.survival([60.0], [0.0], [6.0])[0, 0] == 0.0
+    assert model.death([65.0], [5.0], [1.0])[0, 0] == 1.0
+    # fractional ages follow the base's assumption (UDD within the cohort's year)
+    assert model.survival([60.5], [0.5], [0.5])[0, 0] == pytest.approx(
+        (1 - 0.0405) / (1 - 0.5 * 0.0405), rel=1e-14
+    )
+
+
+@pytest.mark.parametrize("assumption", ["udd", "constant-force", "balducci"])
+def test_zero_improvement_reproduces_the_select_table(assumption):
+    ult = list(np.linspace(0.004, 0.6, 40)) + [1.0]  # ages 40..80, invented
+    sel = [[0.5 * ult[s], 0.7 * ult[s + 1], 0.9 * ult[s + 2]] for s in range(10)]  # 40..49
+    table = tables.SelectTable(40, sel, 40, ult, assumption)
+    model = improved(table, 2020, 2030, lambda ages, year: np.zeros(np.shape(ages)))
+    ages = np.array([40.0, 42.5, 45.0, 47.25, 44.0, 60.5, 75.0])
+    durs = np.array([0.0, 1.5, 0.0, 2.25, 3.0, 10.0, 0.0])
+    t = [0.5, 1.0, 4.5]
+    assert _rel(model.survival(ages, durs, t), table.survival(ages, durs, t)) < 1e-14
+    assert _rel(model.complete_moments(ages, durs, [1, 2]), table.complete_moments(ages, durs, [1, 2])) < 1e-13
+    assert _rel(model.curtate_moments(ages, durs, [1, 2], term=10), table.curtate_moments(ages, durs, [1, 2], term=10)) < 1e-13
+    p = [0.1, 0.5, 0.9]
+    assert _rel(model.complete_quantiles(ages, durs, p), table.complete_quantiles(ages, durs, p)) < 1e-12
+    assert model.limiting_age == table.limiting_age
+    # the select table's own checks of lives carry over
+    with pytest.raises(DomainError) as err:
+        model.check_lives(np.array([45.5]), np.array([1.0]))  # selected at 44.5: not whole
+    assert err.value.field == "lives[0].duration"
+
+
+def test_a_life_past_the_select_period_equals_the_improved_ultimate_table():
+    select = improved(_select_table(), 2020, 2022, _by_age)
+    ultimate = improved(tables.LifeTable(60, ULTIMATE), 2020, 2022, _by_age)
+    ages = np.array([62.0, 62.5, 63.0, 64.75])
+    durs = np.array([2.0, 3.5, 10.0, 2.0])
+    t = [0.25, 1.0, 2.5]
+    assert np.array_equal(select.survival(ages, durs, t), ultimate.survival(ages, 0 * durs, t))
+    assert np.array_equal(select.complete_moments(ages, durs, [1, 2]), ultimate.complete_moments(ages, 0 * durs, [1, 2]))
+    # a select life leaves the select period on the same cohort: selected at 60 and aged 60
+    # in 2022, it is aged 62 in 2024 like the ultimate cohort aged 60 in 2022, so survival
+    # from duration 2 on is that cohort's (hand-derived: ₜp = ₂p · ₜ₋₂p_62 of that cohort)
+    ratio = select.survival([60.0], [0.0], [3.0, 4.5])[0] / select.survival([60.0], [0.0], [2.0])[0, 0]
+    tail = ultimate.survival([60.0], [0.0], [3.0, 4.5])[0] / ultimate.survival([60.0], [0.0], [2.0])[0, 0]
+    assert _rel(ratio, tail) < 1e-14
+
+
+def test_improvement_size_is_bounded_and_a_law_is_refused():
+    ult = [0.01] * 999 + [1.0]
+    big = tables.SelectTable(0, [[0.005] * 5] * 100, 0, ult)
+    with pytest.raises(DomainError) as err:
+        improved(big, 2020, 2021, lambda ages, year: np.zeros(np.shape(ages)))
+    assert err.value.field == "base" and "at most 90,000 rates" in err.value.message
+    with pytest.raises(DomainError) as err:
+        improved(GOMPERTZ, 2020, 2021, lambda ages, year: np.zeros(np.shape(ages)))
+    assert err.value.field == "base" and "select table" in err.value.message
+
+
+def test_negative_improvement_closes_a_cohort_at_a_rate_of_one():
+    # hand-computed, cohort aged 60 in 2022 of the table 0.1, 0.2, 0.4, 1 with r = −0.5:
+    #   age 60 in 2022: 0.1 × 1.5² = 0.225; age 61 in 2023: 0.2 × 1.5³ = 0.675;
+    #   age 62 in 2024: 0.4 × 1.5⁴ = 2.025 ≥ 1, so the rate is 1 and the row closes there
+    model = improved(_small_table(), 2020, 2022, lambda ages, year: np.full(np.shape(ages), -0.5))
+    assert model.death([60.0], [0.0], [1.0])[0, 0] == pytest.approx(0.225, rel=1e-14)
+    surv = model.survival([60.0], [0.0], [2.0, 3.0])[0]
+    assert surv[0] == pytest.approx(0.775 * 0.325, rel=1e-14) and surv[1] == 0.0
+    # UDD: e̊ = (1 − 0.225/2) + 0.775 (1 − 0.675/2) + 0.251875 × 1/2
+    #        = 0.8875 + 0.5134375 + 0.1259375 = 1.526875, finite
+    assert model.complete_expectation([60.0], [0.0])[0] == pytest.approx(1.526875, rel=1e-14)
