@@ -224,20 +224,26 @@ class TableSet(YearGridModel):
         q = np.ones((n_rows, length))
         for r, (_, rates) in enumerate(rows):
             q[r, : len(rates)] = rates
-        self.q = q
         self.row_start = np.array([float(start) for start, _ in rows])
-        self.row_length = np.array([len(rates) for _, rates in rows])
+        self._set_rates(q, np.array([len(rates) for _, rates in rows]))
+
+    def _set_rates(self, q: np.ndarray, row_length: np.ndarray) -> None:
+        """Install the rates q (R, L), each row closing in its year row_length − 1, and
+        precompute everything that follows from them."""
+        n_rows, length = q.shape
+        self.q = q
+        self.row_length = row_length
         # the end of each row: UDD spreads the last year's deaths over it; constant force and
         # Balducci put them all at its start
-        close_shift = 0.0 if fractional_ages == "udd" else 1.0
-        self.row_limit = self.row_start + self.row_length - close_shift
+        close_shift = 0.0 if self.assumption == "udd" else 1.0
+        self.row_limit = self.row_start + row_length - close_shift
         with np.errstate(divide="ignore"):
             steps = -np.log1p(-q)
         lam = np.zeros((n_rows, length + 1))
         lam[:, 1:] = np.cumsum(steps, axis=1)
         self.lam = lam
         ym = self._partial(q, np.zeros_like(q), np.ones_like(q))
-        valid = np.arange(length)[None, :] < self.row_length[:, None]
+        valid = np.arange(length)[None, :] < row_length[:, None]
         self.year_moments = np.where(valid[..., None], ym, 0.0)
         self._finish_grid()
 

@@ -66,20 +66,7 @@ def retabled(base: TableSet, q: np.ndarray) -> TableSet:
     row_length = np.where(closed.any(axis=1), np.argmax(closed, axis=1) + 1, base.row_length)
     q = np.where(idx >= row_length[:, None] - 1, 1.0, np.minimum(q, 1.0))
     length = int(row_length.max())  # no padding beyond the longest row, as a new table
-    q, idx = q[:, :length], idx[:, :length]
-    new.q = q
-    new.row_length = row_length
-    close_shift = 0.0 if base.assumption == "udd" else 1.0
-    new.row_limit = base.row_start + row_length - close_shift
-    with np.errstate(divide="ignore"):
-        steps = -np.log1p(-q)
-    lam = np.zeros((n_rows, length + 1))
-    lam[:, 1:] = np.cumsum(steps, axis=1)
-    new.lam = lam
-    ym = base._partial(q, np.zeros_like(q), np.ones_like(q))
-    valid = idx < row_length[:, None]
-    new.year_moments = np.where(valid[..., None], ym, 0.0)
-    new._finish_grid()
+    new._set_rates(q[:, :length], row_length)
     new.limiting_age = float(np.max(new.row_limit))
     new.max_age = new.limiting_age
     return new
