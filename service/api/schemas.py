@@ -250,50 +250,40 @@ AgesEcho = Annotated[
 ]
 
 
-class SurvivalResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
+class LifeEcho(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
+    """The start of every result: its life's age and duration, or, for a status of several
+    lives, each member's (the unused pair is omitted)."""
+
     age: AgeEcho = None
     duration: DurationEcho = None
     ages: AgesEcho = None
     durations: AgesEcho = None
+
+
+class SurvivalResult(LifeEcho, frozen=True, kw_only=True, omit_defaults=True):
     survival: Annotated[Values, Meta(description="ₜp_x for each t")]
     death: Annotated[Values, Meta(description="ₜq_x for each t")]
     force: Annotated[Values, Meta(description="μ_{x+t} for each t; null where it does not exist")]
     density: Annotated[Values, Meta(description="f_x(t) = ₜp_x μ_{x+t} for each t")]
 
 
-class DeferredDeathResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
-    age: AgeEcho = None
-    duration: DurationEcho = None
-    ages: AgesEcho = None
-    durations: AgesEcho = None
+class DeferredDeathResult(LifeEcho, frozen=True, kw_only=True, omit_defaults=True):
     probability: Annotated[Values, Meta(description="u|ₜq_x for each deferral u")]
 
 
-class ExpectationResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
-    age: AgeEcho = None
-    duration: DurationEcho = None
-    ages: AgesEcho = None
-    durations: AgesEcho = None
+class ExpectationResult(LifeEcho, frozen=True, kw_only=True, omit_defaults=True):
     complete: Annotated[Value, Meta(description="e̊_x, or e̊_{x:n} = E[min(T_x, n)]")]
     curtate: Annotated[Value, Meta(description="e_x, or e_{x:n} = E[min(K_x, n)]")]
     complete_variance: Annotated[Value, Meta(description="Var T_x or Var min(T_x, n)")]
     curtate_variance: Annotated[Value, Meta(description="Var K_x or Var min(K_x, n)")]
 
 
-class MomentsResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
-    age: AgeEcho = None
-    duration: DurationEcho = None
-    ages: AgesEcho = None
-    durations: AgesEcho = None
+class MomentsResult(LifeEcho, frozen=True, kw_only=True, omit_defaults=True):
     complete: Annotated[Values, Meta(description="E[T_x^k] (or of min(T_x, n)) for each order")]
     curtate: Annotated[Values, Meta(description="E[K_x^k] (or of min(K_x, n)) for each order")]
 
 
-class QuantilesResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
-    age: AgeEcho = None
-    duration: DurationEcho = None
-    ages: AgesEcho = None
-    durations: AgesEcho = None
+class QuantilesResult(LifeEcho, frozen=True, kw_only=True, omit_defaults=True):
     complete: Annotated[Values, Meta(description="t with ₜq_x = p, for each p")]
     curtate: Annotated[
         Values, Meta(description="the least whole k with P(K_x ≤ k) ≥ p, for each p")

@@ -148,11 +148,7 @@ class BenefitResult(msgspec.Struct, frozen=True, omit_defaults=True):
     ] = None
 
 
-class PresentValuesResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
-    age: s.AgeEcho = None
-    duration: s.DurationEcho = None
-    ages: s.AgesEcho = None
-    durations: s.AgesEcho = None
+class PresentValuesResult(s.LifeEcho, frozen=True, kw_only=True, omit_defaults=True):
     benefits: Annotated[list[BenefitResult], Meta(description="aligned with the request's")]
 
 
