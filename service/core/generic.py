@@ -150,7 +150,7 @@ class GenericModel(LifetimeModel):
                 h = self.span_hazard(a, d, np.zeros_like(m), m)
             surv = np.where(np.isfinite(h), np.exp(-h), 0.0)
             surv = np.where(m <= end[sl, None] + 1.0, surv, 0.0) if term is None else surv
-            out[sl] = surv @ weights
+            out[sl] = np.einsum("nm,mk->nk", surv, weights)  # rows independent of the batch
         return out
 
     def complete_quantiles(self, age, duration, probabilities):

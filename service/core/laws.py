@@ -397,6 +397,10 @@ class DeMoivre(Law):
             )
         return np.where((m > 0)[..., None] & (a > 0)[..., None], out, 0.0)
 
+    def expectation_summary(self, age, duration, term=None):
+        """From the closed-form moments, so that every life takes the same route."""
+        return LifetimeModel.expectation_summary(self, age, duration, term)
+
     def complete_moments(self, age, duration, orders, term=None):
         """T_x/(ω − x) is Beta(1, α): E[T^k] = (ω − x)^k k! Γ(α + 1)/Γ(α + k + 1).
 
@@ -696,7 +700,7 @@ class GompertzMakehamFamily(Law):
             length = np.maximum(hi - lo, 0.0) if length is None else length
             y = lo[..., None] + length[..., None] * self._gl_u
             with np.errstate(over="ignore"):
-                return length * (np.exp(self._exponent(y)) @ self._gl_w)
+                return length * np.einsum("...n,n->...", np.exp(self._exponent(y)), self._gl_w)
 
         ja = np.ceil(a)
         jb = np.floor(b)

@@ -30,6 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import comb
 
+from . import expansion
 from .errors import ComputationLimitError, DomainError, fmt
 
 MAX_ORDER = 8  # highest moment served
@@ -37,6 +38,14 @@ N_MOM = MAX_ORDER  # ∫ tⁱ ₜp dt for i = 0..7 gives E[T^k] = k ∫ t^(k-1) 
 MAX_TERM = 10_000  # the longest term (years) a temporary quantity may ask for
 MAX_HORIZON = 10_000  # the longest span of years a basis may need for its computations
 CHUNK_ELEMENTS = 2_000_000  # lives × years per block in direct sums, to bound memory
+
+# The quantities expanded per year of age (see YearGridModel._exact_age_functions)
+EXP_S = 0  # S(j + f)/S(j)
+EXP_TAIL = 1  # EXP_TAIL + i: s · ∫₀^∞ tⁱ ₜp dt, i < N_MOM
+EXP_CURTATE = EXP_TAIL + N_MOM - 1  # EXP_CURTATE + k: s · E[K^k], k = 1..MAX_ORDER
+_TERM_BLOCK = 128  # durations per block of a direct sum (fixed, so sums do not depend on the batch)
+EXPAND_HAZARD = 20.0  # see YearGridModel._valuable_years
+_SUMMARY = [EXP_S, EXP_TAIL, EXP_TAIL + 1, EXP_CURTATE + 1, EXP_CURTATE + 2]
 
 # Binomial coefficients binom(k, i) for the moment shifts.
 BINOM = comb(np.arange(N_MOM + 1)[:, None], np.arange(N_MOM + 1)[None, :], exact=False)
@@ -93,7 +102,7 @@ def _shifted_sum(weight: np.ndarray, shift: np.ndarray, moments: np.ndarray) -> 
     powers[..., 0] = weight
     for p in range(1, n_mom):
         powers[..., p] = powers[..., p - 1] * shift
-    q = np.matmul(np.swapaxes(powers, -1, -2), moments)  # (N, K, K)
+    q = np.einsum("...mp,...mr->...pr", powers, moments)  # (N, K, K), rows independent
     return np.einsum("npr,ipr->ni", q, _PAIRS[n_mom])
 
 
@@ -143,6 +152,11 @@ class LifetimeModel(ABC):
             f"can value: beyond it survival for even a few years falls below 1e-20 "
             f"(got {fmt(age)})"
         )
+
+    def place_lives(self, age, duration, rule: str = "last-birthday"):
+        """The (age, duration) at which each life is valued. Only select tables change them:
+        see :func:`place_on_select_rows`; every other basis values a life as it is sent."""
+        return age, duration
 
     # ----------------------------------------------------------------------------------
     # Primitives a model provides
@@ -241,12 +255,7 @@ class LifetimeModel(ABC):
         """(e̊, e, Var T, Var K), whole life or temporary, from the first two moments."""
         complete = self.complete_moments(age, duration, _FIRST_TWO, term)
         curtate = self.curtate_moments(age, duration, _FIRST_TWO, term)
-        return (
-            complete[:, 0],
-            curtate[:, 0],
-            np.maximum(complete[:, 1] - complete[:, 0] ** 2, 0.0),
-            np.maximum(curtate[:, 1] - curtate[:, 0] ** 2, 0.0),
-        )
+        return _summary(complete[:, 0], complete[:, 1], curtate[:, 0], curtate[:, 1])
 
     def complete_expectation(self, age, duration, term=None) -> np.ndarray:
         return self.complete_moments(age, duration, [1], term)[:, 0]
@@ -417,6 +426,30 @@ class LifetimeModel(ABC):
 
 
 _FIRST_TWO = (1, 2)
+
+
+def _subset(loc: Located, mask) -> Located:
+    return Located(loc.row[mask], loc.index[mask], loc.frac[mask])
+
+
+def _summary(complete, second, curtate, curtate_second):
+    """(e̊, e, Var T, Var K) from the first two moments of T and K (arrays)."""
+    return (
+        complete,
+        curtate,
+        np.maximum(second - complete * complete, 0.0),
+        np.maximum(curtate_second - curtate * curtate, 0.0),
+    )
+
+
+def _summary_arrays(complete, second, curtate, curtate_second):
+    """``_summary`` for one life in plain floats: the same operations, so the same bits."""
+    return (
+        np.array([complete]),
+        np.array([curtate]),
+        np.array([max(second - complete * complete, 0.0)]),
+        np.array([max(curtate_second - curtate * curtate, 0.0)]),
+    )
 _ORDER_ARRAYS: dict[tuple, np.ndarray] = {}
 
 
@@ -521,11 +554,82 @@ class YearGridModel(LifetimeModel):
             curt[:, j, 0] = 1.0
         self.tail_moments = tail
         self.curtate_table = curt
+        self.exact_ages = expansion.build(self._exact_age_functions, self._valuable_years())
+
+    def _valuable_years(self) -> np.ndarray:
+        """(R, L): the years of age in which a life of the basis can be: inside its row and
+        below the row's limit."""
+        n_rows, n_years = self.year_moments.shape[:2]
+        j = np.arange(n_years)[None, :]
+        length = getattr(self, "row_length", np.full(n_rows, n_years))
+        inside = (j < np.asarray(length)[:, None]) & (
+            self.row_start[:, None] + j < np.asarray(self.row_limit)[:, None]
+        )
+        # a year through which survival falls below e^-EXPAND_HAZARD (the last ages of a law)
+        # keeps the direct computation: its functions are too steep for a polynomial
+        with np.errstate(invalid="ignore"):
+            steep = ~(np.diff(self.lam, axis=1) <= EXPAND_HAZARD)
+        return inside & ~(steep & np.isfinite(self.lam[:, 1:]))
+
+    def _exact_age_functions(self, cells: np.ndarray, fractions: np.ndarray) -> np.ndarray:
+        """The direct values, for lives aged j + f in the given cells (flat indices into the
+        (R, L) grid) at each fraction f: (cells, fractions, EXPANDED) holding
+
+        * ``s`` = S(j + f)/S(j), the survival through the year to the life's age;
+        * ``s · ∫₀^∞ tⁱ ₜp dt`` for i < N_MOM: the first, partial, year in closed form (or the
+          law's panels), then the tail moments at j + 1 shifted by 1 − f;
+        * ``s · E[K^k]`` for k = 1..MAX_ORDER, by the backward recursion over the years of the
+          row at the same fraction: K at j + f is 1 + K at j + 1 + f, given survival a year.
+
+        Every term is positive; the scaling by s keeps the normalisation's pole (UDD with q
+        near 1) out of the functions that are expanded.
+        """
+        n_rows, n_years = self.year_moments.shape[:2]
+        f = np.asarray(fractions, float)
+        row_of_cell, year_of_cell = np.divmod(cells, n_years)
+        rows, where = np.unique(row_of_cell, return_inverse=True)
+        rr, jj, ff = np.broadcast_arrays(
+            rows[:, None, None], np.arange(n_years)[None, :, None], f[None, None, :]
+        )
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            s = np.nan_to_num(np.exp(-self._year_hazard(rr, jj, np.zeros_like(ff), ff)), nan=0.0)
+            s_out = np.exp(-self._year_hazard(rr, jj, ff, np.ones_like(ff)))
+        s_out = np.nan_to_num(s_out, nan=0.0)
+        # curtate: C(j, f) = S(j+1+f)/S(j+f) · (C(j+1, f) shifted by one year), C = 1 at order 0
+        s_next_year = np.concatenate([s[:, 1:], np.zeros_like(s[:, :1])], axis=1)
+        p_year = s_out * s_next_year  # (rows, L, M)
+        curt = np.zeros((rows.size, f.size, MAX_ORDER + 1))
+        curt[..., 0] = 1.0
+        shift_one = BINOM[: MAX_ORDER + 1, : MAX_ORDER + 1].T
+        kept = np.empty((rows.size, n_years, f.size, MAX_ORDER))
+        for j in range(n_years - 1, -1, -1):
+            curt = p_year[:, j, :, None] * (curt @ shift_one)
+            curt[..., 0] = 1.0
+            kept[:, j] = curt[..., 1:]
+        # complete: the partial first year, then the tail from the next whole age
+        cr, cj = np.broadcast_arrays(row_of_cell[:, None], year_of_cell[:, None])
+        cr = np.broadcast_to(cr, (cells.size, f.size))
+        cj = np.broadcast_to(cj, (cells.size, f.size))
+        cf = np.broadcast_to(f[None, :], cr.shape)
+        partial = self._year_partial(cr.ravel(), cj.ravel(), cf.ravel(), 1.0 - cf.ravel())
+        partial = partial.reshape(cr.shape + (N_MOM,))
+        s_cells = s[where, year_of_cell]  # (C, M)
+        out_cells = s_out[where, year_of_cell]
+        tail = shift_moments(
+            np.broadcast_to(self.tail_moments[row_of_cell, year_of_cell + 1][:, None, :],
+                            cr.shape + (N_MOM,)),
+            1.0 - cf,
+        )
+        scaled_tail = s_cells[..., None] * (partial + out_cells[..., None] * tail)
+        scaled_curtate = s_cells[..., None] * kept[where, year_of_cell]
+        return np.concatenate([s_cells[..., None], scaled_tail, scaled_curtate], axis=-1)
 
     # ---- the hot paths ----------------------------------------------------------------------
 
     def expectation_summary(self, age, duration, term=None):
-        """Lives at whole ages, whole life: four lookups in the per-basis tables."""
+        """Whole life: four lookups in the per-basis tables at whole ages, or one evaluation of
+        the per-year expansions at exact ages (a plain-float path for one life, with the
+        same operations as the batch path, so the same bits)."""
         if term is None:
             age = as_float_array(age)
             duration = as_float_array(duration)
@@ -536,25 +640,22 @@ class YearGridModel(LifetimeModel):
                 if frac == 0.0:
                     e0, m1 = self.tail_moments[r, j, :2].tolist()
                     k1, k2 = self.curtate_table[r, j, 1:3].tolist()
-                    return (
-                        np.array([e0]),
-                        np.array([k1]),
-                        np.array([max(2.0 * m1 - e0 * e0, 0.0)]),
-                        np.array([max(k2 - k1 * k1, 0.0)]),
-                    )
+                    return _summary_arrays(e0, 2.0 * m1, k1, k2)
+                cell = self.exact_ages.cell_of_one(r, j)
+                if frac > 0.0 and cell >= 0:
+                    s, u0, u1, v1, v2 = self.exact_ages.evaluate_one(cell, frac, _SUMMARY)
+                    return _summary_arrays(u0 / s, 2.0 * (u1 / s), v1 / s, v2 / s)
                 return super().expectation_summary(age, duration, term)
             loc = self._locate(age, duration)
             if not np.any(loc.frac > 0.0):
                 tail = self.tail_moments[loc.row, loc.index, :2]
                 curt = self.curtate_table[loc.row, loc.index, 1:3]
-                complete, second = tail[:, 0], 2.0 * tail[:, 1]
-                curtate, curtate_second = curt[:, 0], curt[:, 1]
-                return (
-                    complete,
-                    curtate,
-                    np.maximum(second - complete**2, 0.0),
-                    np.maximum(curtate_second - curtate**2, 0.0),
-                )
+                return _summary(tail[:, 0], 2.0 * tail[:, 1], curt[:, 0], curt[:, 1])
+            cell = self.exact_ages.cells(loc.row, loc.index)
+            if np.all((loc.frac > 0.0) & (cell >= 0)):
+                v = self.exact_ages.evaluate(cell, loc.frac, _SUMMARY)
+                s = v[:, 0]
+                return _summary(v[:, 1] / s, 2.0 * (v[:, 2] / s), v[:, 3] / s, v[:, 4] / s)
         return super().expectation_summary(age, duration, term)
 
     def span_hazard(self, age, duration, t0, t1):
@@ -627,10 +728,43 @@ class YearGridModel(LifetimeModel):
         return orders[None, :] * ints[:, orders - 1]
 
     def _whole_life_integrals(self, loc: Located, n_mom: int) -> np.ndarray:
-        """∫₀^∞ tⁱ ₜp_x dt for i < n_mom."""
+        """∫₀^∞ tⁱ ₜp_x dt for i < n_mom: the tables at whole ages, the expansions at exact
+        ages, the direct computation in a year that has no expansion."""
+        return self._by_age_kind(
+            loc,
+            lambda r, j: self.tail_moments[r, j, :n_mom],
+            list(range(EXP_TAIL, EXP_TAIL + n_mom)),
+            lambda rest: self._whole_life_direct(_subset(loc, rest), n_mom),
+        )
+
+    def _by_age_kind(self, loc: Located, at_whole, expanded, direct) -> np.ndarray:
+        """Each life by the cheapest exact route: ``at_whole(row, index)`` at whole ages, the
+        quantities ``expanded`` of the per-year expansions divided by the expanded survival
+        at exact ages, ``direct(mask of those lives)`` elsewhere. A life's route depends only on the
+        life, so its answer does not depend on the other lives of the batch."""
         r, j, f = loc.row, loc.index, loc.frac
-        if not np.any(f > 0.0):
-            return self.tail_moments[r, j, :n_mom]
+        whole = f == 0.0
+        if np.all(whole):
+            return at_whole(r, j)
+        cell = self.exact_ages.cells(r, j)
+        fast = ~whole & (cell >= 0)
+        if np.all(fast):
+            v = self.exact_ages.evaluate(cell, f, [EXP_S] + expanded)
+            return v[:, 1:] / v[:, :1]
+        out = np.empty((r.size, len(expanded)))
+        if np.any(whole):
+            out[whole] = at_whole(r[whole], j[whole])
+        if np.any(fast):
+            v = self.exact_ages.evaluate(cell[fast], f[fast], [EXP_S] + expanded)
+            out[fast] = v[:, 1:] / v[:, :1]
+        rest = ~whole & ~fast
+        if np.any(rest):
+            out[rest] = direct(rest)
+        return out
+
+    def _whole_life_direct(self, loc: Located, n_mom: int) -> np.ndarray:
+        """∫₀^∞ tⁱ ₜp_x dt for lives at exact ages: the partial first year, then the tail."""
+        r, j, f = loc.row, loc.index, loc.frac
         partial = self._year_partial(r, j, f, 1.0 - f)[:, :n_mom]
         with np.errstate(over="ignore", invalid="ignore"):
             s_next = np.exp(-self._year_hazard(r, j, f, np.ones_like(f)))
@@ -653,7 +787,7 @@ class YearGridModel(LifetimeModel):
         with np.errstate(over="ignore", invalid="ignore"):
             h_first = self._year_hazard(r, jc, f, np.ones_like(f))
         log_s = -h_first  # log survival to the start of the next whole year
-        step = max(1, CHUNK_ELEMENTS // max(n_lives * n_mom, 1))
+        step = _TERM_BLOCK  # fixed, so that a life's sum does not depend on the batch
         # years past the end of the grid add nothing (no survival there): stop at the grid
         m_all = np.arange(1, max(min(term, n_years - int(j.min(initial=0))), 0) + 1)
         for start in range(0, m_all.size, step):
@@ -687,29 +821,44 @@ class YearGridModel(LifetimeModel):
         age = as_float_array(age)
         duration = np.broadcast_to(as_float_array(duration), age.shape)
         loc = self._locate(age, duration)
-        if term is None and not np.any(loc.frac > 0.0):
-            return self.curtate_table[loc.row, loc.index][:, orders]
+        if term is None:
+            return self._by_age_kind(
+                loc,
+                lambda r, j: self.curtate_table[r, j][:, orders],
+                [EXP_CURTATE + int(k) for k in orders],
+                lambda rest: self._curtate_direct(
+                    age[rest], duration[rest], _subset(loc, rest), orders, None
+                ),
+            )
         return self._curtate_direct(age, duration, loc, orders, term)
 
     def _curtate_direct(self, age, duration, loc, orders, term):
-        """E[min(K, n)^k] = Σ_{m=1}^{n} (m^k − (m−1)^k) ₘp_x, a sum of positive terms."""
+        """E[min(K, n)^k] = Σ_{m=1}^{n} (m^k − (m−1)^k) ₘp_x, a sum of positive terms.
+
+        Every life sums the same terms in the same order (m = 1, 2, … to the end of the grid,
+        zeros past its own horizon), in blocks that do not depend on the batch, so its answer
+        does not depend on the other lives of the request."""
         n_years = self.year_moments.shape[1]
-        end = self.row_start[loc.row] + n_years  # no survival beyond the grid
-        horizon = int(np.ceil(np.max(end - age))) if age.size else 0
-        n_terms = horizon if term is None else min(horizon, term)
+        n_terms = n_years + 1 if term is None else min(n_years + 1, term)
         out = np.zeros((age.size, orders.size))
-        if n_terms <= 0:
+        if n_terms <= 0 or age.size == 0:
             return out
-        a = age[:, None]
-        d = duration[:, None]
-        step = max(1, CHUNK_ELEMENTS // max(age.size, 1))
-        for start in range(1, n_terms + 1, step):
-            m = np.arange(start, min(start + step, n_terms + 1), dtype=float)[None, :]
-            with np.errstate(over="ignore", invalid="ignore"):
-                h = self.span_hazard(a, d, np.zeros_like(m), m)
-            surv = np.where(np.isfinite(h), np.exp(-h), 0.0)
-            weights = m[..., None] ** orders - (m[..., None] - 1.0) ** orders  # (1, M, K)
-            out += np.einsum("nm,nmk->nk", surv, np.broadcast_to(weights, surv.shape + (orders.size,)))
+        m_all = np.arange(1, n_terms + 1, dtype=float)
+        weights = m_all[:, None] ** orders - (m_all[:, None] - 1.0) ** orders  # (M, K)
+        lives = max(1, CHUNK_ELEMENTS // _TERM_BLOCK)
+        for lo in range(0, age.size, lives):
+            a = age[lo : lo + lives, None]
+            d = duration[lo : lo + lives, None]
+            acc = out[lo : lo + lives]
+            for start in range(0, n_terms, _TERM_BLOCK):
+                m = m_all[None, start : start + _TERM_BLOCK]
+                with np.errstate(over="ignore", invalid="ignore"):
+                    h = self.span_hazard(a, d, np.zeros_like(m), m)
+                surv = np.where(np.isfinite(h), np.exp(-h), 0.0)
+                if not np.any(surv > 0.0):
+                    break
+                for i in range(m.shape[1]):
+                    acc += surv[:, i, None] * weights[start + i]
         return out
 
     def complete_quantiles(self, age, duration, probabilities):
@@ -766,6 +915,41 @@ class YearGridModel(LifetimeModel):
             lo = np.where(go_up, mid, lo)
             hi = np.where(go_up, hi, mid)
         return 0.5 * (lo + hi)
+
+
+#: how a select table places a life whose age at selection (age − duration) is not whole
+SELECTION_AGE_RULES = {
+    "last-birthday": "selected at the whole age at or below age − duration (the age last "
+    "birthday at selection); the life keeps its exact age, and its duration since selection "
+    "becomes age − that whole age, longer by less than a year",
+    "nearest-birthday": "selected at the whole age nearest to age − duration (halves round up); "
+    "the life keeps its exact duration since selection and is valued at that whole age plus "
+    "the duration, so its age moves by at most half a year",
+}
+#: a selection age within this of a whole age is that whole age (rounding in age − duration)
+WHOLE_TOLERANCE = 1e-9
+
+
+def place_on_select_rows(age, duration, rule: str):
+    """(age, duration) with a whole selection age age − duration, by ``rule``."""
+    if rule not in SELECTION_AGE_RULES:
+        raise DomainError(
+            "selection_age_rule",
+            f"selection_age_rule must be one of {', '.join(SELECTION_AGE_RULES)} (got {rule!r})",
+        )
+    age = np.asarray(age, float)
+    duration = np.broadcast_to(np.asarray(duration, float), age.shape)
+    with np.errstate(invalid="ignore"):
+        sel = age - duration
+        nearest = np.rint(sel)
+        whole = np.abs(sel - nearest) <= WHOLE_TOLERANCE
+        if np.all(whole | ~np.isfinite(sel)):
+            return age, duration
+        if rule == "last-birthday":
+            chosen = np.where(whole, nearest, np.floor(sel))
+            return age, np.where(whole, duration, age - chosen)
+        chosen = np.where(whole, nearest, np.floor(sel + 0.5))
+        return np.where(whole, age, chosen + duration), duration
 
 
 def check_horizon(n_years: int, kind: str) -> None:

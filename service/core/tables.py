@@ -20,7 +20,7 @@ import numpy as np
 from scipy.special import gammainc, gammaln
 
 from .errors import DomainError, fmt
-from .lifetime import MAX_HORIZON, N_MOM, Located, YearGridModel
+from .lifetime import MAX_HORIZON, N_MOM, Located, YearGridModel, place_on_select_rows
 
 FRACTIONAL_AGES = ("udd", "constant-force", "balducci")
 
@@ -34,6 +34,12 @@ _REC_SERIES = (-1.0) ** _REC_N[:, None] / (_I[None, :] + 1.0 + _REC_N[:, None])
 
 
 # ---- closed forms for the per-year integrals -------------------------------------------------
+
+
+def _rowwise(terms, coefficients):
+    """terms (..., n) @ coefficients (n, k) by einsum, whose sums do not depend on how many
+    rows there are (a BLAS matrix product may round a row differently in a larger batch)."""
+    return np.einsum("...n,nk->...k", terms, coefficients)
 
 
 def _poly_scaled(a, n_mom):
@@ -59,7 +65,7 @@ def _exp_moments_unit(z, n_mom):
     z = np.asarray(z, float)
     small = z <= 1.0
     zs = np.where(small, z, 0.0)
-    series = (zs[..., None] ** _EXP_N / _EXP_FACT) @ _EXP_SERIES[:, :n_mom]
+    series = _rowwise(zs[..., None] ** _EXP_N / _EXP_FACT, _EXP_SERIES[:, :n_mom])
     zl = np.where(small, 2.0, z)[..., None]
     i = _I[:n_mom]
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -88,7 +94,7 @@ def _reciprocal_moments_unit(rho, n_mom):
     rho = np.asarray(rho, float)
     small = rho <= 0.5
     rs = np.where(small, rho, 0.0)
-    series = (rs[..., None] ** _REC_N) @ _REC_SERIES[:, :n_mom]
+    series = _rowwise(rs[..., None] ** _REC_N, _REC_SERIES[:, :n_mom])
     rl = np.where(small, 1.0, rho)
     out = np.empty(rho.shape + (n_mom,))
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -382,6 +388,9 @@ class SelectTable(TableSet):
         self.ultimate_start_age = ult_start
         self.limiting_age = float(self.row_limit[-1])
         self.max_age = self.limiting_age
+
+    def place_lives(self, age, duration, rule="last-birthday"):
+        return place_on_select_rows(age, duration, rule)
 
     def _row_of(self, age, duration):
         age = np.asarray(age, float)

@@ -45,7 +45,10 @@ def test_survival_starts_at_one_and_never_rises(name, u, v, ts):
     p = m.survival([x], [d], t)[0]
     q = m.death([x], [d], t)[0]
     assert p[0] == 1.0 and q[0] == 0.0
-    assert np.all(np.diff(p) <= 0.0)
+    # never rises, to rounding: two durations a few ulps apart on either side of a whole age
+    # are computed by different (each exact) formulas, e.g. one Gauss–Legendre piece of a GM
+    # exponent versus two pieces and the per-year table, which may differ by 1e-15 relative
+    assert np.all(np.diff(p) <= 4e-16 * p[:-1])
     assert np.all((p >= 0.0) & (p <= 1.0)) and np.all(np.isfinite(q))
     np.testing.assert_allclose(p + q, 1.0, rtol=0, atol=2e-16)
 
