@@ -120,7 +120,9 @@ class Calculations:
         request.scope["state"]["basis_fingerprint"] = found.fingerprint
         return found
 
-    def lives(self, lives: list[s.Life], basis: ResolvedBasis) -> tuple[np.ndarray, np.ndarray]:
+    def lives(
+        self, lives: list[s.Life], basis: ResolvedBasis, rule: str = "last-birthday"
+    ) -> tuple[np.ndarray, np.ndarray]:
         n = len(lives)
         if n > self.settings.max_lives:
             raise bad_field(
@@ -139,6 +141,7 @@ class Calculations:
         else:
             age = np.array(ages, dtype=float)
             duration = np.array([life.duration for life in lives], dtype=float)
+        age, duration = basis.model.place_lives(age, duration, rule)
         basis.model.check_lives(age, duration)  # DomainError fields are "lives[i].age" …
         return age, duration
 
@@ -194,7 +197,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         """For each life aged x and each t: ₜp_x, ₜq_x, μ_{x+t} and f_x(t) = ₜp_x μ_{x+t}."""
         req = await calc.read(request, s.SurvivalRequest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis)
+        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
         t = calc.durations(req.t, "$.t", age.size)
         model = basis.model
 
@@ -225,7 +228,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         """
         req = await calc.read(request, s.DeferredDeathRequest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis)
+        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
         u = calc.durations(req.deferral, "$.deferral", age.size)
         model, period = basis.model, req.period
         values = await calc.run(
@@ -242,7 +245,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         """e̊_x and e_x (or, with `term` n, E[min(T_x, n)] and E[min(K_x, n)]) and variances."""
         req = await calc.read(request, s.ExpectationRequest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis)
+        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
         model, term = basis.model, req.term
 
         def work():
@@ -283,7 +286,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 raise Problem("invalid-request", f"{field}: {message}", [(field, message)])
             seen.add(k)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis)
+        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
         model, term = basis.model, req.term
 
         def work():
@@ -306,7 +309,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         """For each p: the t with ₜq_x = p, and the least whole k with P(K_x ≤ k) ≥ p."""
         req = await calc.read(request, s.QuantilesRequest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis)
+        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
         p = np.asarray(req.probabilities, dtype=float)
         calc.check_size(age.size * p.size, "$.probabilities")
         model = basis.model
@@ -343,6 +346,11 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         basis = await calc.basis(request, req.basis)
         start, duration = _life_table_start(req, getattr(basis.model, "n_members", 1))
         several = isinstance(start, list)
+        if not several and start is not None:
+            placed_age, placed_duration = basis.model.place_lives(
+                np.array([start]), np.array([duration]), req.selection_age_rule
+            )
+            start, duration = float(placed_age[0]), float(placed_duration[0])
         first = start[0] if several else start
         rows = int(max(req.end_age - first, 0.0) + 1e-9) + 1
         if rows > settings.max_durations:
@@ -372,8 +380,8 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 headers={"X-Basis-Fingerprint": basis.fingerprint},
             )
         result = s.LifeTableResult(
-            start_age=None if several else req.start_age,
-            duration=None if several else req.duration,
+            start_age=None if several else start,
+            duration=None if several else duration,
             start_ages=start if several else None,
             durations=duration if several else None,
             age=None if several else table["age"].tolist(),

@@ -91,7 +91,7 @@ def present_value_handlers(settings: Settings, catalogue: Catalogue) -> list[Any
         )
         discount = _discount(req.interest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis)
+        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
         benefits = [_core_benefit(b) for b in req.benefits]
         premiums = [_premium_term(b) for b in req.benefits]
         horizon = float(np.max(basis.model.horizon(age, duration)))

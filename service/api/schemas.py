@@ -12,12 +12,13 @@ age, say) is typed ``float | None``: the value is sent as ``null``. msgspec writ
 
 from __future__ import annotations
 
-from typing import Annotated, Union
+from typing import Annotated, Literal, Union
 
 import msgspec
 from msgspec import Meta
 
 from service.bases.definitions import BASIS_DESCRIPTION, BASIS_KINDS, Basis, BasisDefinition
+from service.core.lifetime import SELECTION_AGE_RULES
 
 __all__ = ["Basis", "BasisDefinition"]
 
@@ -110,12 +111,24 @@ def _durations(what: str) -> object:
     ]
 
 
+SelectionAgeRule = Annotated[
+    Literal["last-birthday", "nearest-birthday"],
+    Meta(
+        description="How a select table places a life whose age at selection (age − duration) "
+        "is not a whole age; bases that are not select tables ignore it. "
+        + "; ".join(f"`{k}`: {v}" for k, v in SELECTION_AGE_RULES.items())
+        + ". Each result echoes the age and duration actually used."
+    ),
+]
+
+
 class SurvivalRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
     """Survival and death probabilities, force of mortality and density at durations t."""
 
     basis: BasisField
     lives: Lives
     t: _durations("durations t in years")  # type: ignore[valid-type]
+    selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
 class DeferredDeathRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
@@ -127,6 +140,7 @@ class DeferredDeathRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=Tr
     period: Annotated[
         float, Meta(gt=0, description="the period t in years over which death is counted")
     ] = 1.0
+    selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
 class ExpectationRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
@@ -135,6 +149,7 @@ class ExpectationRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True
     basis: BasisField
     lives: Lives
     term: Union[Term, None] = None
+    selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
 class MomentsRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
@@ -153,6 +168,7 @@ class MomentsRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
         ),
     ]
     term: Union[Term, None] = None
+    selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
 class QuantilesRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
@@ -169,6 +185,7 @@ class QuantilesRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
             "between 0 and 1",
         ),
     ]
+    selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
 class LifeTableRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=True):
@@ -227,6 +244,7 @@ class LifeTableRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True, 
 
 
 # ---- answers ---------------------------------------------------------------------------------
+    selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
 class BasisReference(msgspec.Struct, frozen=True):

@@ -133,6 +133,7 @@ class PresentValuesRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=Tr
         Meta(min_length=1, max_length=MAX_BENEFITS,
              description=f"1 to {MAX_BENEFITS} benefits, tagged by type"),
     ]
+    selection_age_rule: s.SelectionAgeRule = "last-birthday"
 
 
 class BenefitResult(msgspec.Struct, frozen=True, omit_defaults=True):

@@ -69,6 +69,17 @@ class SeveralLives(GenericModel):
         duration = np.broadcast_to(np.asarray(duration, float), age.shape)
         return age[:, None, :], duration[:, None, :]
 
+    def place_lives(self, age, duration, rule="last-birthday"):
+        """Each member's age and duration placed by its own basis (see LifetimeModel)."""
+        age, duration = self._lives(age, duration)
+        if age.shape[1] != self.n_members:
+            return age, duration
+        placed = [m.place_lives(age[:, i], duration[:, i], rule) for i, m in enumerate(self.members)]
+        return (
+            np.stack([np.broadcast_to(a, age.shape[:1]) for a, _ in placed], axis=1),
+            np.stack([np.broadcast_to(d, age.shape[:1]) for _, d in placed], axis=1),
+        )
+
     def check_lives(self, age, duration) -> None:
         age, duration = self._lives(age, duration)
         if age.shape[1] != self.n_members:

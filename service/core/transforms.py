@@ -122,6 +122,10 @@ class Shifted(LifetimeModel):
                 f"age x + {fmt(self.shift)}",
             ) from None
 
+    def place_lives(self, age, duration, rule="last-birthday"):
+        valued, duration = self.base.place_lives(self._a(age), duration, rule)
+        return np.asarray(valued, float) - self.shift, duration
+
     def span_hazard(self, age, duration, t0, t1):
         return self.base.span_hazard(self._a(age), duration, t0, t1)
 
@@ -226,6 +230,9 @@ class ForceAdjusted(GenericModel):
             )
         return lo
 
+    def place_lives(self, age, duration, rule="last-birthday"):
+        return self.base.place_lives(age, duration, rule)
+
     def check_lives(self, age, duration) -> None:
         self.base.check_lives(age, duration)
         if self.max_age < self.base.max_age:
@@ -288,6 +295,9 @@ class Spliced(GenericModel):
         if self.whole_ages:
             return self.years - (age - np.floor(age))
         return np.full(age.shape, self.years)
+
+    def place_lives(self, age, duration, rule="last-birthday"):
+        return self.then.place_lives(age, duration, rule)
 
     def check_lives(self, age, duration) -> None:
         self.first.check_lives(age, duration)
@@ -457,6 +467,9 @@ class SelectCohortTable(TableSet):
 
     def _check_rows(self, age, duration) -> None:
         self.select_base._check_rows(age, duration)
+
+    def place_lives(self, age, duration, rule="last-birthday"):
+        return self.select_base.place_lives(age, duration, rule)
 
 
 def _cohort_factors(

@@ -212,8 +212,20 @@ def test_age_at_the_limiting_age(client, assert_problem):
     assert "121" in problem["errors"][0]["message"]
 
 
-def test_select_duration_not_allowed(client, assert_problem):
+def test_fractional_selection_ages_are_placed_by_the_rule(client, assert_problem):
+    """age − duration = 40.25 is not a whole selection age: the default rule (last-birthday)
+    selects at 40 and keeps the age, so the life is valued at age 40.5, duration 0.5; the
+    nearest-birthday rule selects at 40 and keeps the duration (age 40.25)."""
     body = {"basis": "thistlemoor-2024-select", "lives": [{"age": 40.5, "duration": 0.25}], "t": [1]}
+    placed = post_json(client, "/v1/survival", body).json()["results"][0]
+    assert (placed["age"], placed["duration"]) == (40.5, 0.5)
+    same = {"basis": "thistlemoor-2024-select", "lives": [{"age": 40.5, "duration": 0.5}], "t": [1]}
+    assert post_json(client, "/v1/survival", same).json()["results"][0] == placed
+    body["selection_age_rule"] = "nearest-birthday"
+    nearest = post_json(client, "/v1/survival", body).json()["results"][0]
+    assert (nearest["age"], nearest["duration"]) == (40.25, 0.25)
+    # a selection age before the table's first one is still outside it
+    body = {"basis": "thistlemoor-2024-select", "lives": [{"age": 19.5, "duration": 0.25}], "t": [1]}
     assert_problem(post_json(client, "/v1/survival", body), 422, "outside-domain", ["$.lives[0].duration"])
 
 

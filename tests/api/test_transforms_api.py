@@ -120,8 +120,12 @@ def test_improved_select_table_through_the_api(client, assert_problem):
     assert all(rc["complete"] > rb["complete"] for rc, rb in zip(c, b))  # lighter mortality
     r = _post(client, "/v1/life-table", {"basis": improving, "start_age": 45, "end_age": 50, "duration": 1})
     assert r.status_code == 200 and all(math.isfinite(v) for v in r.json()["results"][0]["q"])
-    # the select table's own rules for lives carry over: selected at 44.5 is no selection age
+    # the select table's own rules for lives carry over: selected at 44.5, a life is placed by
+    # the selection-age rule (last-birthday: selected at 44, so duration 1 at age 45)
     r = _post(client, "/v1/expectation", {"basis": improving, "lives": [{"age": 45, "duration": 0.5}]})
+    same = _post(client, "/v1/expectation", {"basis": improving, "lives": [{"age": 45, "duration": 1}]})
+    assert r.json()["results"] == same.json()["results"]
+    r = _post(client, "/v1/expectation", {"basis": improving, "lives": [{"age": 19.5, "duration": 0.25}]})
     assert_problem(r, 422, "outside-domain", ["$.lives[0].duration"])
 
 
