@@ -49,6 +49,18 @@ PROBLEM_KINDS: dict[str, tuple[int, str, str]] = {
         "Method not allowed",
         "This path does not answer this HTTP method.",
     ),
+    "not-acceptable": (
+        406,
+        "Not acceptable",
+        "The Accept header rules out every media type this resource answers with. Each "
+        "resource lists its media types in the OpenAPI document.",
+    ),
+    "invalid-header": (
+        400,
+        "Header not valid",
+        "A request header does not have the syntax HTTP gives it (RFC 9110); the detail "
+        "names the header and what is wrong.",
+    ),
     "body-too-large": (
         413,
         "Body too large",
@@ -135,7 +147,8 @@ def from_decode_error(exc: msgspec.DecodeError) -> Problem:
 # ---- rendering and exception handlers -------------------------------------------------------
 
 
-def render(problem: ProblemDetailsException) -> Response[Any]:
+def problem_body(problem: ProblemDetailsException) -> dict[str, Any]:
+    """The problem+json fields of an error."""
     body: dict[str, Any] = {
         "type": problem.type_ or "/problems/http-error",
         "title": problem.title or "Error",
@@ -145,6 +158,11 @@ def render(problem: ProblemDetailsException) -> Response[Any]:
     extra = problem.extra
     if isinstance(extra, dict) and extra.get("errors"):
         body["errors"] = extra["errors"]
+    return body
+
+
+def render(problem: ProblemDetailsException) -> Response[Any]:
+    body = problem_body(problem)
     headers = dict(problem.headers or {})
     headers["Cache-Control"] = "no-store"
     return Response(
@@ -168,6 +186,8 @@ def handle_http_exception(request: Request, exc: HTTPException) -> Response[Any]
             f"{request.method} is not allowed at {request.url.path}",
             headers=headers,
         )
+    elif status == 406:
+        problem = Problem("not-acceptable", str(exc.detail), headers=headers)
     elif status == 413:
         problem = Problem("body-too-large", "the request body is too large", headers=headers)
     elif status == 415:
