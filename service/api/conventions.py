@@ -30,6 +30,7 @@ from typing import Any
 
 import msgspec
 from litestar import Request
+from litestar._openapi.plugin import handle_schema_path_not_found as _SCHEMA_NOT_FOUND
 
 from .problems import PROBLEM_MEDIA_TYPE, Problem, problem_body
 
@@ -144,7 +145,9 @@ def served_types(handler: Any) -> list[str]:
     produces = (handler.opt or {}).get("produces")
     if produces:
         return list(produces)
-    media_type = str(getattr(handler.media_type, "value", handler.media_type))
+    # a handler that returns a Response of its own has no media type: JSON, as every such
+    # handler here answers
+    media_type = str(getattr(handler.media_type, "value", handler.media_type) or "application/json")
     if media_type.split(";")[0].endswith("+json"):
         # a +json type is JSON (RFC 6839): a client asking for application/json reads it
         return [media_type, "application/json"]
@@ -156,8 +159,9 @@ async def negotiate(request: Request[Any, Any, Any]) -> None:
     header = ", ".join(
         v.decode("latin-1") for k, v in request.scope["headers"] if k == b"accept"
     ) or None
-    if (request.route_handler.opt or {}).get("negotiate") is False:
-        return
+    handler = request.route_handler
+    if (handler.opt or {}).get("negotiate") is False or handler.fn is _SCHEMA_NOT_FOUND:
+        return  # a 404 for an unknown /schema/... path is a 404 whatever Accept says
     offered = served_types(request.route_handler)
     try:
         chosen = choose(header, offered)

@@ -55,6 +55,12 @@ PROBLEM_KINDS: dict[str, tuple[int, str, str]] = {
         "The Accept header rules out every media type this resource answers with. Each "
         "resource lists its media types in the OpenAPI document.",
     ),
+    "invalid-http": (
+        400,
+        "Not an HTTP request",
+        "The server could not read the request as HTTP/1.1 (a malformed request line or "
+        "header); it closes the connection after this answer.",
+    ),
     "invalid-header": (
         400,
         "Header not valid",

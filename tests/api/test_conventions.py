@@ -146,6 +146,7 @@ def test_405_allows_head_beside_get(client, assert_problem):
 def test_every_404_is_problem_json(client, assert_problem, path):
     assert_problem(client.get(path), 404, "not-found")
     assert_problem(client.get(path, headers={"Accept": "text/html"}), 404, "not-found")
+    assert_problem(client.get(path, headers={"Accept": "application/json"}), 404, "not-found")
 
 
 def test_the_docs_page_loads_nothing_from_elsewhere(client):
