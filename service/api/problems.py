@@ -15,7 +15,11 @@ from litestar import Request, Response
 from litestar.exceptions import HTTPException
 from litestar.plugins.problem_details import ProblemDetailsException
 
-from service.bases.catalogue import CatalogueNotReadyError, UnknownBasisError
+from service.bases.catalogue import (
+    CatalogueNotReadyError,
+    UnknownBasisError,
+    UnknownBasisVersionError,
+)
 from service.bases.validation import field_error
 from service.core.errors import DomainError
 
@@ -43,6 +47,12 @@ PROBLEM_KINDS: dict[str, tuple[int, str, str]] = {
         404,
         "Unknown stored basis",
         "No stored basis has this id. GET /v1/bases lists them.",
+    ),
+    "unknown-basis-version": (
+        404,
+        "Unknown version of a stored basis",
+        "None of the versions of this stored basis has this fingerprint. "
+        "GET /v1/bases/{id}/versions lists them.",
     ),
     "method-not-allowed": (
         405,
@@ -221,6 +231,16 @@ def handle_unknown_basis(request: Request, exc: UnknownBasisError) -> Response[A
     )
 
 
+def handle_unknown_version(request: Request, exc: UnknownBasisVersionError) -> Response[Any]:
+    return render(
+        Problem(
+            "unknown-basis-version",
+            f"no version of the stored basis {exc.basis_id!r} has the fingerprint "
+            f"{exc.fingerprint!r}; GET /v1/bases/{exc.basis_id}/versions lists them",
+        )
+    )
+
+
 def handle_not_ready(request: Request, exc: CatalogueNotReadyError) -> Response[Any]:
     return render(Problem("not-ready", "the service is still loading its stored bases"))
 
@@ -248,6 +268,7 @@ EXCEPTION_HANDLERS = {
     HTTPException: handle_http_exception,
     DomainError: handle_domain_error,
     UnknownBasisError: handle_unknown_basis,
+    UnknownBasisVersionError: handle_unknown_version,
     CatalogueNotReadyError: handle_not_ready,
     Exception: handle_unexpected,
 }

@@ -408,6 +408,21 @@ class StoredBasisDetail(msgspec.Struct, frozen=True):
     ]
 
 
+class BasisVersion(msgspec.Struct, frozen=True):
+    version: str
+    title: str
+    fingerprint: Annotated[str, Meta(description="fetch it at /v1/bases/{id}/versions/{fingerprint}")]
+    current: Annotated[bool, Meta(description="whether this is the version in use")]
+
+
+class BasisVersionsResponse(msgspec.Struct, frozen=True):
+    id: str
+    versions: Annotated[
+        list[BasisVersion],
+        Meta(description="the current version first, then the earlier ones kept beside it"),
+    ]
+
+
 class LawParameter(msgspec.Struct, frozen=True):
     name: str
     domain: Annotated[str, Meta(description="the values allowed")]

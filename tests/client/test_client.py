@@ -383,3 +383,13 @@ def test_the_readme_client_example_runs(service, capsys):
     assert printed[0].startswith("sha256:")
     assert printed[1].startswith("65.0 ") and printed[2].startswith("70.0 ")
     assert printed[-1].startswith("422 [('$.basis.A', 'A must be greater than")
+
+
+def test_an_earlier_version_of_a_stored_basis_by_fingerprint(service):
+    with LifetimeClient(service.url) as client:
+        current = client.basis("thistlemoor-2024-annuitants")
+        same = client.basis_version("thistlemoor-2024-annuitants", current.fingerprint)
+        with pytest.raises(LifetimeServiceError) as caught:
+            client.basis_version("thistlemoor-2024-annuitants", "sha256:" + "0" * 64)
+    assert same == current
+    assert caught.value.status == 404 and caught.value.type == "/problems/unknown-basis-version"
