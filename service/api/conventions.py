@@ -201,7 +201,12 @@ def head_as_get(app: Any) -> Any:
                 message = {"type": "http.response.body", "body": b"", "more_body": False}
             await send(message)
 
-        await app({**scope, "method": "GET"}, receive, send_without_body)
+        as_get = {**scope, "method": "GET"}
+        try:
+            await app(as_get, receive, send_without_body)
+        finally:  # the route litestar matched, for the metrics and the access log
+            if "path_template" in as_get:
+                scope["path_template"] = as_get["path_template"]
 
     return wrapped
 

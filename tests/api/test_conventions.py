@@ -169,3 +169,9 @@ def test_index_points_to_the_docs_the_contract_and_health(client):
     page = client.get("/", headers={"Accept": "text/html,*/*;q=0.8"})
     assert page.headers["content-type"].startswith("text/html")
     assert 'href="/schema"' in page.text
+
+
+def test_head_is_counted_under_its_route(client):
+    client.head("/health")
+    metrics = client.get("/metrics").text
+    assert 'lifetime_http_requests_total{method="HEAD",route="/health",status="200"}' in metrics
