@@ -96,6 +96,9 @@ def test_readme_example(client, calculation_fingerprint_of, command, lang, shown
         shown_body, got = json.loads(shown), r.json()
         if "calculation_fingerprint" in got:
             _check_build_fields(calculation_fingerprint_of, path, body, shown_body, got)
+        elif "service_version" in got:  # GET /: the build, without a calculation
+            assert VERSION.match(shown_body.pop("service_version"))
+            assert got.pop("service_version") == service_version()
         _close(shown_body, got)
     else:
         shown_rows = list(csv.reader(io.StringIO(shown)))
