@@ -627,7 +627,8 @@ def draw_charts(
         (right, improvements, f"Generational improvement, valuation year {IMPROVEMENT_BASE_YEAR}\n"
          "(q falls by r a year at every age from the next year on)"),
     ):
-        for (label, b), style, marker in zip(series, LINE_STYLES, MARKERS):
+        every = max(1, len(ages) // 9)
+        for i, ((label, b), style, marker) in enumerate(zip(series, LINE_STYLES, MARKERS)):
             answer = client.expectation(basis=b, lives=lives)
             _check_results(answer, len(lives), "expectation")
             _check(all(isinstance(r.complete, float) for r in answer.results),
@@ -635,7 +636,8 @@ def draw_charts(
             # a line style and a marker of its own: where two series nearly agree (a
             # rating for five years only, improvement at old ages) both stay visible
             ax.plot(ages, [r.complete for r in answer.results], label=label, linestyle=style,
-                    marker=marker, markevery=max(1, len(ages) // 9), markersize=5,
+                    # markers at staggered ages, so coinciding series show each marker
+                    marker=marker, markevery=(i % every, every), markersize=5,
                     linewidth=1.6, alpha=0.9)
         ax.set_title(title)
         ax.set_xlabel("age x (years)")
