@@ -14,6 +14,8 @@ from service.bases.definitions import BASIS_KINDS, CROSS_FIELD_RULES, kind_of
 
 from . import schemas as s
 from .calculations import _error_response
+from .conventions import chosen_media_type
+from .tabular import CSV_MEDIA_TYPE, records_csv
 
 BASES_TAG = "bases"
 
@@ -49,6 +51,13 @@ def _conditional(request: Request[Any, Any, Any], basis: StoredBasis) -> Respons
     if etag_matches(request.headers.get("if-none-match"), etag.strip('"')):
         return Response(content=b"", status_code=304, headers=headers)
     return Response(content=body, media_type="application/json", headers=headers)
+
+
+def _listing(request: Request[Any, Any, Any], answer: Any, field: str) -> Any:
+    """A list answer as JSON, or its records as CSV when the request asked for it."""
+    if chosen_media_type(request) == CSV_MEDIA_TYPE:
+        return Response(records_csv(getattr(answer, field)), media_type=CSV_MEDIA_TYPE)
+    return answer
 
 
 def etag_matches(if_none_match: str | None, etag: str) -> bool:
@@ -167,11 +176,13 @@ def describe_laws() -> s.LawsResponse:
 def bases_handlers(catalogue: Catalogue) -> list[Any]:
     laws_answer = describe_laws()
     common: dict[str, Any] = {"sync_to_thread": False, "tags": [BASES_TAG]}
+    listing: dict[str, Any] = {**common, "opt": {"produces": ["application/json", CSV_MEDIA_TYPE]}}
 
-    @get("/v1/bases", operation_id="listBases", summary="The stored bases", **common)
-    def list_bases() -> s.StoredBasesResponse:
-        """Every stored basis with its id, title, type, source and fingerprint."""
-        return s.StoredBasesResponse(
+    @get("/v1/bases", operation_id="listBases", summary="The stored bases", **listing)
+    def list_bases(request: Request[Any, Any, Any]) -> s.StoredBasesResponse:
+        """Every stored basis with its id, title, type, source and fingerprint (one row each
+        with Accept: text/csv)."""
+        return _listing(request, s.StoredBasesResponse(
             bases=[
                 s.StoredBasisSummary(
                     id=b.id,
@@ -182,7 +193,7 @@ def bases_handlers(catalogue: Catalogue) -> list[Any]:
                 )
                 for b in catalogue.stored()
             ]
-        )
+        ), "bases")
 
     @get(
         "/v1/bases/{basis_id:str}",
@@ -208,20 +219,23 @@ def bases_handlers(catalogue: Catalogue) -> list[Any]:
         operation_id="listBasisVersions",
         summary="Every version of a stored basis: the current one and those kept beside it",
         responses={404: _error_response("No stored basis has this id.")},
-        **common,
+        **listing,
     )
-    def list_versions(basis_id: FromPath[str]) -> s.BasisVersionsResponse:
+    def list_versions(
+        request: Request[Any, Any, Any], basis_id: FromPath[str]
+    ) -> s.BasisVersionsResponse:
         """The current version first, then earlier ones (newest first), each with its
-        fingerprint: fetch one with GET /v1/bases/{id}/versions/{fingerprint}."""
+        fingerprint: fetch one with GET /v1/bases/{id}/versions/{fingerprint}. One row each
+        with Accept: text/csv."""
         versions = catalogue.versions(basis_id)
-        return s.BasisVersionsResponse(
+        return _listing(request, s.BasisVersionsResponse(
             id=basis_id,
             versions=[
                 s.BasisVersion(version=b.version, title=b.title, fingerprint=b.fingerprint,
                                current=i == 0)
                 for i, b in enumerate(versions)
             ],
-        )
+        ), "versions")
 
     @get(
         "/v1/bases/{basis_id:str}/versions/{fingerprint:str}",

@@ -97,8 +97,9 @@ def add_request_bodies(app: Litestar, request_types: dict[str, type[msgspec.Stru
             required=True,
             description=(struct.__doc__ or "").strip().splitlines()[0],
         )
-    for path in request_types:  # every calculation answers CSV too (tabular.py)
-        operation = document.paths[path].post
+    listings = [("/v1/bases", "get"), ("/v1/bases/{basis_id}/versions", "get")]
+    for path, method in [(p, "post") for p in request_types] + listings:  # CSV too (tabular.py)
+        operation = getattr(document.paths[path], method)
         assert operation is not None and operation.responses is not None
         ok = operation.responses["200"]
         if getattr(ok, "content", None) is not None:
@@ -113,6 +114,10 @@ CSV_ROWS = (
     "benefit), the life's age and duration first; a value that does not exist is empty"
 )
 CSV_DESCRIPTIONS = {
+    "/v1/bases": "with Accept: text/csv, one row per stored basis: id,title,type,source,"
+    "fingerprint",
+    "/v1/bases/{basis_id}/versions": "with Accept: text/csv, one row per version: version,"
+    "title,fingerprint,current",
     "/v1/life-table": "with Accept: text/csv, the same columns as CSV, with a header row "
     "age,l,d,q,complete,curtate (age_0, age_1, … for a status); a value that does not exist "
     "is empty",

@@ -1,4 +1,7 @@
-"""Calculation answers as CSV (``Accept: text/csv``): one header row, then one row per value.
+"""Answers as CSV (``Accept: text/csv``): one header row, then one row per value.
+
+A list of flat records (the stored bases, the versions of one) is one row per record, its
+fields as columns (``records_csv``). A calculation is as follows (``results_csv``).
 
 The columns are the life's echo (``age,duration``; for a status of several lives
 ``age_0,age_1,…,duration_0,duration_1,…``), then, where the answer holds one value per
@@ -26,6 +29,8 @@ CSV_MEDIA_TYPE = "text/csv"  # litestar adds "; charset=utf-8"
 def cell(value: Any) -> str:
     if value is None:
         return ""
+    if isinstance(value, bool):
+        return "true" if value else "false"
     if isinstance(value, float):
         return repr(value) if math.isfinite(value) else ""
     return str(value)
@@ -82,4 +87,16 @@ def results_csv(
                 header = echo_names + names
                 writer.writerow(header)
             writer.writerow([cell(v) for v in values])
+    return out.getvalue().encode("utf-8")
+
+
+def records_csv(records: Sequence[msgspec.Struct]) -> bytes:
+    """Flat records (Structs of plain values) as CSV, their fields as columns."""
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    if records:
+        names = list(records[0].__struct_fields__)
+        writer.writerow(names)
+        for record in records:
+            writer.writerow([cell(getattr(record, n)) for n in names])
     return out.getvalue().encode("utf-8")

@@ -84,7 +84,7 @@ def test_q_0_does_not_select_csv(client, assert_problem):
     assert r.status_code == 200 and r.headers["content-type"] == "application/json"
 
 
-@pytest.mark.parametrize("path", ["/health", "/v1/bases", "/v1/laws", "/ready"])
+@pytest.mark.parametrize("path", ["/health", "/v1/laws", "/ready", "/v1/bases/standard-ultimate"])
 def test_406_when_accept_rules_out_json(client, assert_problem, path):
     assert_problem(client.get(path, headers={"Accept": "text/csv"}), 406, "not-acceptable")
     assert client.get(path, headers={"Accept": "application/*"}).status_code == 200
@@ -175,3 +175,16 @@ def test_head_is_counted_under_its_route(client):
     client.head("/health")
     metrics = client.get("/metrics").text
     assert 'lifetime_http_requests_total{method="HEAD",route="/health",status="200"}' in metrics
+
+
+@pytest.mark.parametrize("path,field", [("/v1/bases", "bases"),
+                                        ("/v1/bases/thistlemoor-2024-annuitants/versions", "versions")])
+def test_lists_of_records_answer_csv_on_request(client, path, field):
+    import csv
+    import io
+
+    rows = list(csv.DictReader(io.StringIO(client.get(path, headers={"Accept": "text/csv"}).text)))
+    records = client.get(path).json()[field]
+    as_text = [{k: (str(v).lower() if isinstance(v, bool) else str(v)) for k, v in r.items()}
+               for r in records]
+    assert rows == as_text
