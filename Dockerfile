@@ -13,13 +13,20 @@ WORKDIR /app
 COPY requirements.lock ./
 RUN pip install --require-hashes -r requirements.lock
 
-# The service itself, without re-resolving dependencies.
-COPY pyproject.toml README.md ./
+# The service itself, without re-resolving dependencies. The commit it is built from is
+# recorded in the package (service/build.json), so service_version names it at run time:
+#   docker build --build-arg SOURCE_COMMIT="$(git rev-parse HEAD)" .
+# Without the argument service_version is the version alone.
+ARG SOURCE_COMMIT=""
+COPY pyproject.toml setup.py README.md ./
 COPY service ./service
-RUN pip install --no-deps --no-build-isolation . \
-    && useradd --system --uid 10001 --no-create-home --shell /usr/sbin/nologin lifetime
+RUN python -m service.version --record --commit "$SOURCE_COMMIT" \
+    && pip install --no-deps --no-build-isolation . \
+    && groupadd --system --gid 10001 lifetime \
+    && useradd --system --uid 10001 --gid 10001 --no-create-home --shell /usr/sbin/nologin lifetime
 
-USER 10001
+# the same user and group ids as runAsUser and runAsGroup in deploy/kubernetes.yaml
+USER 10001:10001
 
 # Listen on every interface inside the container; the stored bases ship in the package and
 # another folder can be mounted read-only and named with LIFETIME_BASES_DIR.

@@ -17,9 +17,9 @@ Products (with the desk's invented assumptions, shown again in the report):
 * single-life annuity: monthly in advance for life, the first GUARANTEE_YEARS years certain;
   basis the stored annuitants' law, women valued FEMALE_AGE_SHIFT years younger, smokers
   (enhanced terms) at force × SMOKER_ANNUITY_FORCE;
-* joint-life annuity for couples: monthly in advance while either lives (last survivor), each
-  member on the annuitants' basis as above; the value while both live (joint life) is shown
-  beside it.
+* last-survivor annuity for couples: monthly in advance while either lives, each member on
+  the annuitants' basis as above; the value of a joint-life annuity (paid while both live) is
+  shown beside it for comparison.
 
 Each distinct basis and product term is one batch: one request per endpoint for all its lives.
 Every answer is decoded into the service's response Structs by the client and its shape is
@@ -31,12 +31,12 @@ from __future__ import annotations
 
 import argparse
 import csv
+import itertools
 import json
 import math
 import os
 import re
 import sys
-import textwrap
 import time
 from collections import defaultdict
 from collections.abc import Iterable, Sequence
@@ -65,6 +65,14 @@ SMOKER_ANNUITY_FORCE = 1.5
 FEMALE_AGE_SHIFT = -3.0
 GUARANTEE_YEARS = 5.0
 ANNUITY_FREQUENCY = 12
+
+#: the report's value columns say which annuity they value, per 1 a year paid monthly in
+#: advance (ä⁽¹²⁾, the annual amount 1 paid as twelve instalments of 1/12)
+ANNUITY_VALUE_COLUMN = (
+    f"ä⁽¹²⁾ per 1 a year, {GUARANTEE_YEARS:g} years certain then for life"
+)
+LAST_SURVIVOR_COLUMN = "ä⁽¹²⁾ per 1 a year while either lives (last survivor)"
+JOINT_LIFE_COLUMN = "ä⁽¹²⁾ per 1 a year while both live (joint life, for comparison)"
 ANNUITY_HORIZONS = [5.0, 10.0, 15.0, 20.0, 25.0, 30.0]
 TABLE_BY_SEX = {"male": "thistlemoor-2024-male", "female": "thistlemoor-2024-female"}
 ANNUITANTS = "thistlemoor-2024-annuitants"
@@ -104,7 +112,7 @@ def read_applicants(path: Path = APPLICANTS) -> list[Applicant]:
     for row in csv.DictReader(lines):
         if row["invented"] != "yes":
             raise ValueError(f"{path.name}: applicant {row['id']} is not marked invented")
-        if row["product"] not in ("term", "annuity", "joint-annuity"):
+        if row["product"] not in ("term", "annuity", "last-survivor-annuity"):
             raise ValueError(f"{path.name}: {row['id']}: unknown product {row['product']!r}")
         applicants.append(
             Applicant(
@@ -193,7 +201,7 @@ def plan(applicant: Applicant) -> Plan:
         return Plan(annuitant_basis(applicant.sex, applicant.smoker), {"age": applicant.age},
                     tuple(ANNUITY_HORIZONS), (("annuity", guaranteed),))
     if applicant.partner_sex is None or applicant.partner_age is None:
-        raise ValueError(f"{applicant.id}: a joint annuity needs the partner's sex and age")
+        raise ValueError(f"{applicant.id}: a last-survivor annuity needs the partner's sex and age")
     members = [
         annuitant_basis(applicant.sex, applicant.smoker),
         annuitant_basis(applicant.partner_sex, False),
@@ -385,8 +393,9 @@ def write_report(
         "premiums yearly in advance over the term.",
         f"- Annuities: `{ANNUITANTS}`, women {abs(FEMALE_AGE_SHIFT):g} years younger, smokers "
         f"on enhanced terms (force of mortality × {SMOKER_ANNUITY_FORCE:g}). Paid monthly in "
-        f"advance; single-life annuities guaranteed for {GUARANTEE_YEARS:g} years; couples' "
-        "annuities paid while either lives (the value while both live is shown for comparison).",
+        f"advance; single-life annuities guaranteed for {GUARANTEE_YEARS:g} years; couples "
+        "buy last-survivor annuities, paid while either lives (the joint-life value, paid "
+        "while both live, is shown for comparison).",
         "- Single premiums below are net: no expenses, no profit margin.",
         "",
     ]
@@ -418,7 +427,7 @@ def write_report(
             "## Single-life annuities",
             "",
             "| applicant | sex | age | smoker | yearly amount | basis | fingerprint | e̊_x (years) "
-            "| survival ₜp_x | ä per unit a year | single premium | sd of PV |",
+            f"| survival ₜp_x | {ANNUITY_VALUE_COLUMN} | single premium | sd of PV |",
             "| --- | --- | ---: | --- | ---: | --- | --- | ---: | --- | ---: | ---: | ---: |",
         ]
         for q in by_product["annuity"]:
@@ -432,16 +441,16 @@ def write_report(
             )
         lines.append("")
 
-    if by_product["joint-annuity"]:
+    if by_product["last-survivor-annuity"]:
         lines += [
-            "## Joint-life annuities (couples)",
+            "## Last-survivor annuities (couples)",
             "",
             "| applicant | first life | second life | yearly amount | basis (last survivor) | "
             "fingerprint | e̊ of the last survivor (years) | survival of either | "
-            "ä while either lives | single premium | ä while both live |",
+            f"{LAST_SURVIVOR_COLUMN} | single premium | {JOINT_LIFE_COLUMN} |",
             "| --- | --- | --- | ---: | --- | --- | ---: | --- | ---: | ---: | ---: |",
         ]
-        for q in by_product["joint-annuity"]:
+        for q in by_product["last-survivor-annuity"]:
             a = q.applicant
             either, both = q.values["while either lives"], q.values["while both live"]
             lines.append(
@@ -476,6 +485,50 @@ def write_report(
 
 # ---- charts -------------------------------------------------------------------------------------
 
+#: each series of a chart gets its own line style and marker, so none hides another
+LINE_STYLES = ("-", "--", "-.", ":", (0, (5, 1, 1, 1, 1, 1)))
+MARKERS = ("o", "s", "^", "D", "v")
+#: where a curve counts as having reached the bottom of its chart
+VISIBLE_SURVIVAL = 1e-3
+VISIBLE_PROBABILITY = 1e-4
+#: the widest title line, in characters, at the charts' size and font
+TITLE_WIDTH = 95
+
+
+def last_visible(x: Sequence[float], y: Sequence[float], floor: float) -> float:
+    """The last x whose y is still visible above ``floor`` (the axis ends just after it)."""
+    return max((a for a, b in zip(x, y) if b == b and b > floor), default=x[-1])
+
+
+def title_lines(prefix: str, basis: Any) -> list[str]:
+    """A basis for a chart title, in lines of at most TITLE_WIDTH characters that never break
+    inside brackets or parentheses: a status of several lives gets one line per member."""
+    if isinstance(basis, (d.LastSurvivor, d.JointLife)):
+        kind = "last survivor" if isinstance(basis, d.LastSurvivor) else "joint life"
+        return [f"{prefix}{kind} of {len(basis.members)} lives:", *(f"{i}. {describe(m)}"
+                                        for i, m in enumerate(basis.members, 1))]
+    return wrap_outside_brackets(f"{prefix}{describe(basis)}", TITLE_WIDTH)
+
+
+def wrap_outside_brackets(text: str, width: int) -> list[str]:
+    """``text`` in lines of about ``width`` characters, broken only at spaces outside any
+    brackets or parentheses (a bracketed group longer than a line stays whole)."""
+    groups: list[str] = []
+    depth = 0
+    for word in text.split(" "):
+        if depth > 0 and groups:
+            groups[-1] += " " + word
+        else:
+            groups.append(word)
+        depth += sum(word.count(c) for c in "([") - sum(word.count(c) for c in ")]")
+    lines = [""]
+    for group in groups:
+        if lines[-1] and len(lines[-1]) + 1 + len(group) > width:
+            lines.append(group)
+        else:
+            lines[-1] = f"{lines[-1]} {group}" if lines[-1] else group
+    return lines
+
 
 def draw_charts(
     client: LifetimeClient, out: Path, quotes: Sequence[Quote], stored: Any, chosen: str,
@@ -494,16 +547,21 @@ def draw_charts(
     x = f"{start:g}"
     t = [i * step for i in range(int(100 / step) + 1)]
     fig, ax = plt.subplots(figsize=(8, 5), constrained_layout=True)
+    styles = itertools.cycle(LINE_STYLES)
+    last_age = 0.0
     for b in stored.bases:
         answer = client.survival(basis=b.id, lives=[{"age": start}], t=t)
         _check_results(answer, 1, "survival")
         p = [math.nan if v is None else v for v in answer.results[0].survival]
         _check(len(p) == len(t), "survival: one value per duration")
-        ax.plot([start + x for x in t], p, label=f"{b.id}")
+        ax.plot([start + x for x in t], p, label=f"{b.id}", linestyle=next(styles),
+                linewidth=1.8)
+        last_age = max(last_age, last_visible(t, p, VISIBLE_SURVIVAL))
     ax.set_title(f"Survival from age {start:g} on the stored bases (Thistlemoor bases INVENTED)")
     ax.set_xlabel(f"age {x} + t (years)")
     ax.set_ylabel(rf"${{}}_{{t}}p_{{{x}}} = P(T_{{{x}}} > t)$, survival from age {x}")
-    ax.set_xlim(start, start + 100)
+    # the axis ends where the last curve reaches the bottom of the chart, not at 100 years
+    ax.set_xlim(start, start + last_age)
     ax.set_ylim(0, 1.02)
     ax.grid(True, alpha=0.3)
     ax.legend(title="stored basis", fontsize=8)
@@ -531,12 +589,12 @@ def draw_charts(
                label=f"e = E[K] = {expectation.curtate:.2f} years")
     who = (f"{a.id}: {a.sex} {a.age:g}" if a.partner_age is None
            else f"{a.id}: couple {a.sex} {a.age:g} and {a.partner_sex} {a.partner_age:g}, "
-                "last survivor")
-    ax.set_title(f"Curtate future lifetime K, {who} (INVENTED)\n"
-                 + textwrap.fill(f"basis: {quote.basis}", 90), fontsize=10)
+                "last-survivor annuity")
+    ax.set_title("\n".join([f"Curtate future lifetime K, {who} (INVENTED)",
+                            *title_lines("basis: ", basis)]), fontsize=10)
     ax.set_xlabel("k (whole years lived before death)")
     ax.set_ylabel("P(K = k)")
-    ax.set_xlim(-1, max((i for i, p in zip(k, probability) if p > 1e-5), default=60) + 2)
+    ax.set_xlim(-1, last_visible(k, probability, VISIBLE_PROBABILITY) + 1)
     ax.grid(True, axis="y", alpha=0.3)
     ax.legend()
     fig.savefig(out / "curtate_distribution.png", dpi=110)
@@ -569,12 +627,18 @@ def draw_charts(
         (right, improvements, f"Generational improvement, valuation year {IMPROVEMENT_BASE_YEAR}\n"
          "(q falls by r a year at every age from the next year on)"),
     ):
-        for label, b in series:
+        every = max(1, len(ages) // 9)
+        for i, ((label, b), style, marker) in enumerate(zip(series, LINE_STYLES, MARKERS)):
             answer = client.expectation(basis=b, lives=lives)
             _check_results(answer, len(lives), "expectation")
             _check(all(isinstance(r.complete, float) for r in answer.results),
                    "expectation: e̊ is not a number")
-            ax.plot(ages, [r.complete for r in answer.results], label=label)
+            # a line style and a marker of its own: where two series nearly agree (a
+            # rating for five years only, improvement at old ages) both stay visible
+            ax.plot(ages, [r.complete for r in answer.results], label=label, linestyle=style,
+                    # markers at staggered ages, so coinciding series show each marker
+                    marker=marker, markevery=(i % every, every), markersize=5,
+                    linewidth=1.6, alpha=0.9)
         ax.set_title(title)
         ax.set_xlabel("age x (years)")
         ax.grid(True, alpha=0.3)

@@ -25,9 +25,18 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"{PROGRAM}: {exc}", file=sys.stderr)
         return 2
 
-    import uvicorn
+    try:
+        import uvicorn
 
-    from service.api.app import create_app
+        from service.api.app import create_app
+        from service.api.protocol import ProblemH11Protocol
+    except ImportError as exc:  # the client alone is installed, without the server extra
+        print(
+            f"{PROGRAM}: cannot start: {exc.name} is not installed; the service needs the "
+            "server extra: pip install 'lifetime-service[server]' (or '.[server]' in a checkout)",
+            file=sys.stderr,
+        )
+        return 2
     from service.api.observability import configure_logging
     from service.bases.catalogue import BasisFileError, Catalogue
 
@@ -48,6 +57,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         access_log=False,  # the service writes its own access log lines
         server_header=False,
         proxy_headers=False,
+        http=ProblemH11Protocol,  # its own 400s as problem+json (api/protocol.py)
     )
     # uvicorn stops gracefully on SIGTERM (in-flight requests finish), then restores the
     # handler it found and raises the signal again: this handler makes that a clean exit 0

@@ -1,19 +1,25 @@
 """A typed Python client for the Lifetime Service, sync (`LifetimeClient`) and async
 (`AsyncLifetimeClient`), on httpx.
 
-One method per endpoint. A calculation method takes either the request Struct of
-``service.api.schemas`` or the request's fields as keyword arguments (plain dicts and lists
-are fine: ``basis`` may be a stored id, an inline basis Struct of
-``service.bases.definitions``, or a dict with a ``"type"``). Keyword arguments are checked
-against the request Struct before anything is sent; an answer is decoded into the response
-Struct of the same module, so a change in the shape of the service's answers fails loudly
-here. Only msgspec, httpx and the schema modules are imported: the client works without
-litestar, numpy or the numeric core.
+It needs only httpx and msgspec: ``pip install lifetime-service`` (without the ``server``
+extra) installs the client alone, and importing it imports neither litestar nor numpy nor the
+numeric core. Requests and answers are the service's own msgspec Structs
+(``service.api.schemas``, ``service.api.value_schemas``, ``service.bases.definitions``, which
+import only msgspec).
+
+One method per endpoint, with the request's fields as explicit, typed parameters. ``basis`` is
+a stored id, an inline basis Struct of ``service.bases.definitions`` or a dict with a
+``"type"``; lives, interest and benefits may be Structs or plain dicts. Before anything is
+sent, the request is encoded and decoded exactly as the service decodes it, so a request off
+the schema (an unknown field anywhere, a wrong type, a value outside its bounds) raises the
+error the service would answer, in the service's words, without a round trip. An answer is
+decoded into its response Struct, so a change in the shape of the service's answers fails
+loudly here. ``send(request)`` sends a request Struct built beforehand.
 
 Every failure raises one exception type, `LifetimeServiceError`: a problem+json answer (its
-``status``, ``title``, ``detail`` and field ``errors``), a non-problem error answer, a request
-that does not fit the schema before it is sent, or a service that could not be reached after
-the retries.
+``status``, ``title``, ``detail`` and field ``errors``, as the service words them), a
+non-problem error answer, a request refused before sending, or a service that could not be
+reached after the retries.
 
 Retries: only when no connection could be made (``httpx.ConnectError`` or
 ``httpx.ConnectTimeout``), so nothing is ever sent twice; never on an answer, whatever its
@@ -22,7 +28,7 @@ status. At most ``retries`` retries, waiting ``backoff × 2^k`` seconds (capped 
 
     from service.client import LifetimeClient
 
-    with LifetimeClient("http://127.0.0.1:8000") as client:
+    with LifetimeClient("http://127.0.0.1:8000", timeout=10.0, retries=3) as client:
         answer = client.expectation(basis="standard-ultimate", lives=[{"age": 60}])
         print(answer.basis.fingerprint, answer.results[0].complete)
 """
@@ -30,10 +36,10 @@ status. At most ``retries`` retries, waiting ``backoff × 2^k`` seconds (capped 
 from __future__ import annotations
 
 import asyncio
-import re
 import time
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Any, Union
+from typing import Any, Never, Union
 from urllib.parse import quote
 
 import httpx
@@ -41,12 +47,14 @@ import msgspec
 
 from service.api import schemas as s
 from service.api.schemas import (
+    BasisDefinition,
     DeferredDeathRequest,
     DeferredDeathResponse,
     ExpectationRequest,
     ExpectationResponse,
     HealthResponse,
     LawsResponse,
+    Life,
     LifeTableRequest,
     LifeTableResponse,
     MomentsRequest,
@@ -60,11 +68,14 @@ from service.api.schemas import (
     SurvivalResponse,
 )
 from service.api.value_schemas import (
+    BenefitRequest,
     BenefitResult,
+    Interest,
     PresentValuesRequest,
     PresentValuesResponse,
     PresentValuesResult,
 )
+from service.bases.validation import field_error
 
 __all__ = [
     "AsyncLifetimeClient",
@@ -77,6 +88,7 @@ __all__ = [
 
 
 DEFAULT_TIMEOUT = 10.0
+DEFAULT_CONNECT_TIMEOUT = 5.0
 DEFAULT_RETRIES = 3
 DEFAULT_BACKOFF = 0.1
 DEFAULT_MAX_BACKOFF = 2.0
@@ -118,7 +130,6 @@ class LifetimeServiceError(Exception):
 
 
 _PROBLEM = msgspec.json.Decoder(s.ProblemDocument)
-_AT_PATH = re.compile(r"^(?P<message>.*?)(?: - at `(?P<field>[^`]*)`)?$", re.DOTALL)
 
 
 def _from_answer(response: httpx.Response) -> LifetimeServiceError:
@@ -145,17 +156,28 @@ def _from_answer(response: httpx.Response) -> LifetimeServiceError:
     )
 
 
+#: the service's title for a request off the schema (its problem kind "invalid-request")
+INVALID_REQUEST_TITLE = "Request does not fit the schema"
+
+
 def _unfit(exc: msgspec.ValidationError) -> LifetimeServiceError:
-    match = _AT_PATH.match(str(exc))
-    message = match.group("message") if match else str(exc)
-    where = (match.group("field") if match else None) or "$"
+    """The service's own answer to this request, made without sending it: the same field
+    path, message, title and type (``service.bases.validation.field_error`` words both)."""
+    where, message = field_error(str(exc))
     return LifetimeServiceError(
         status=None,
-        title="Request does not fit the schema (checked before sending)",
+        title=INVALID_REQUEST_TITLE,
         detail=f"{where}: {message}",
         errors=[(where, message)],
-        type="client/invalid-request",
+        type="/problems/invalid-request",
         sent=False,
+    )
+
+
+def _failed(exc: Exception) -> LifetimeServiceError:
+    return LifetimeServiceError(
+        status=None, title="Request failed", detail=f"{type(exc).__name__}: {exc}",
+        type="client/transport-error",
     )
 
 
@@ -170,6 +192,14 @@ def _unreachable(url: str, attempts: int, exc: Exception) -> LifetimeServiceErro
 
 # ---- what every call needs, shared by both clients ---------------------------------------
 
+#: what a parameter takes besides the Struct itself: the same fields as a dict
+BasisArgument = Union[str, BasisDefinition, Mapping[str, Any]]
+LifeArgument = Union[Life, Mapping[str, Any]]
+InterestArgument = Union[Interest, Mapping[str, Any]]
+BenefitArgument = Union[BenefitRequest, Mapping[str, Any]]
+
+DEFAULT_URL = "http://127.0.0.1:8000"
+
 
 @dataclass(frozen=True)
 class _Call:
@@ -183,6 +213,17 @@ class _Call:
 _ENCODER = msgspec.json.Encoder()
 _DECODERS: dict[Any, msgspec.json.Decoder] = {}
 
+#: request Struct -> (path, response Struct)
+ENDPOINTS: dict[type, tuple[str, type]] = {
+    SurvivalRequest: ("/v1/survival", SurvivalResponse),
+    DeferredDeathRequest: ("/v1/deferred-death", DeferredDeathResponse),
+    ExpectationRequest: ("/v1/expectation", ExpectationResponse),
+    MomentsRequest: ("/v1/moments", MomentsResponse),
+    QuantilesRequest: ("/v1/quantiles", QuantilesResponse),
+    LifeTableRequest: ("/v1/life-table", LifeTableResponse),
+    PresentValuesRequest: ("/v1/present-values", PresentValuesResponse),
+}
+
 
 def _decoder(kind: Any) -> msgspec.json.Decoder:
     if kind not in _DECODERS:
@@ -190,22 +231,37 @@ def _decoder(kind: Any) -> msgspec.json.Decoder:
     return _DECODERS[kind]
 
 
-def _post(path: str, request_type: Any, answer: Any, request: Any, fields: dict) -> _Call:
-    """A POST call with the request given as a Struct, or as fields checked against
-    ``request_type`` (``None``: sent as given, unchecked)."""
-    if request is not None and fields:
-        raise TypeError("give the request Struct or keyword arguments, not both")
-    if request is None:
-        if request_type is None:
-            request = fields
-        else:
-            try:
-                request = msgspec.convert(fields, request_type)
-            except msgspec.ValidationError as exc:
-                raise _unfit(exc) from None
-    elif request_type is not None and not isinstance(request, (request_type, dict)):
-        raise TypeError(f"expected a {request_type.__name__}, got {type(request).__name__}")
-    return _Call("POST", path, answer, _ENCODER.encode(request))
+def _checked(request_type: type, fields: Mapping[str, Any]) -> bytes:
+    """The body of a request, checked as the service checks it: encoded, then decoded
+    strictly into its Struct (so every message is the service's)."""
+    try:
+        body = _ENCODER.encode(fields)
+    except (TypeError, msgspec.EncodeError) as exc:
+        raise LifetimeServiceError(
+            status=None, title="Request cannot be written as JSON", detail=str(exc),
+            type="client/unencodable-request", sent=False,
+        ) from None
+    try:
+        _decoder(request_type).decode(body)
+    except msgspec.ValidationError as exc:
+        raise _unfit(exc) from None
+    except msgspec.DecodeError as exc:  # NaN or infinity written as null, say
+        raise _unfit(msgspec.ValidationError(str(exc))) from None
+    return body
+
+
+def _post(request_type: type, fields: Mapping[str, Any], accept: str = "application/json") -> _Call:
+    path, answer = ENDPOINTS[request_type]
+    return _Call("POST", path, str if accept != "application/json" else answer,
+                 _checked(request_type, fields), accept)
+
+
+def _prepared(request: msgspec.Struct) -> _Call:
+    """A request Struct built beforehand (``send``)."""
+    if type(request) not in ENDPOINTS:
+        names = ", ".join(k.__name__ for k in ENDPOINTS)
+        raise TypeError(f"send() takes one of {names} (got {type(request).__name__})")
+    return _post(type(request), msgspec.to_builtins(request))
 
 
 def _decode(call: _Call, response: httpx.Response) -> Any:
@@ -226,20 +282,35 @@ def _decode(call: _Call, response: httpx.Response) -> Any:
         ) from exc
 
 
+def _life_table_fields(basis, end_age, start_age, radix, duration, start_ages, durations,
+                       unknown) -> dict[str, Any]:
+    return {"basis": basis, "end_age": end_age, "start_age": start_age, "radix": radix,
+            "duration": duration, "start_ages": start_ages, "durations": durations, **unknown}
+
+
 class _Base:
     def __init__(
         self,
-        base_url: str = "http://127.0.0.1:8000",
+        base_url: str = DEFAULT_URL,
         *,
         timeout: float = DEFAULT_TIMEOUT,
+        connect_timeout: float = DEFAULT_CONNECT_TIMEOUT,
         retries: int = DEFAULT_RETRIES,
         backoff: float = DEFAULT_BACKOFF,
         max_backoff: float = DEFAULT_MAX_BACKOFF,
         token: Union[str, None] = None,
-        headers: Union[dict[str, str], None] = None,
+        headers: Union[Mapping[str, str], None] = None,
+        transport: Any = None,
     ):
+        """``timeout``: seconds to wait for each read or write of an answer (a long batch may
+        need more); ``connect_timeout``: seconds to wait for a connection; ``retries``: how
+        many times a refused connection is tried again (0: never), waiting ``backoff × 2^k``
+        seconds, at most ``max_backoff``; ``token``: the bearer token when the service
+        requires one; ``transport``: an httpx transport (for tests)."""
         if retries < 0:
             raise ValueError("retries must be at least 0")
+        if timeout <= 0 or connect_timeout <= 0:
+            raise ValueError("timeout and connect_timeout must be greater than 0 seconds")
         self.base_url = base_url.rstrip("/")
         self.retries = retries
         self.backoff = backoff
@@ -247,7 +318,11 @@ class _Base:
         self._headers = {"User-Agent": "lifetime-service-client", **(headers or {})}
         if token is not None:
             self._headers["Authorization"] = f"Bearer {token}"
-        self._timeout = httpx.Timeout(timeout)
+        self._timeout = httpx.Timeout(timeout, connect=connect_timeout)
+        self._http = self._open(transport)
+
+    def _open(self, transport: Any) -> Any:
+        raise NotImplementedError
 
     def _delay(self, retry: int) -> float:
         return min(self.backoff * 2**retry, self.max_backoff)
@@ -258,46 +333,17 @@ class _Base:
             headers["Content-Type"] = "application/json"
         return {"method": call.method, "url": call.path, "content": call.body, "headers": headers}
 
-    # the calls, built once for both clients
-
-    @staticmethod
-    def _survival(request: Any, fields: dict) -> _Call:
-        return _post("/v1/survival", SurvivalRequest, SurvivalResponse, request, fields)
-
-    @staticmethod
-    def _deferred_death(request: Any, fields: dict) -> _Call:
-        return _post(
-            "/v1/deferred-death", DeferredDeathRequest, DeferredDeathResponse, request, fields
-        )
-
-    @staticmethod
-    def _expectation(request: Any, fields: dict) -> _Call:
-        return _post("/v1/expectation", ExpectationRequest, ExpectationResponse, request, fields)
-
-    @staticmethod
-    def _moments(request: Any, fields: dict) -> _Call:
-        return _post("/v1/moments", MomentsRequest, MomentsResponse, request, fields)
-
-    @staticmethod
-    def _quantiles(request: Any, fields: dict) -> _Call:
-        return _post("/v1/quantiles", QuantilesRequest, QuantilesResponse, request, fields)
-
-    @staticmethod
-    def _life_table(request: Any, fields: dict, csv: bool) -> _Call:
-        call = _post(
-            "/v1/life-table", LifeTableRequest, str if csv else LifeTableResponse, request, fields
-        )
-        if csv:
-            call = _Call(call.method, call.path, str, call.body, "text/csv")
-        return call
-
-    @staticmethod
-    def _present_values(request: Any, fields: dict) -> _Call:
-        return _post("/v1/present-values", PresentValuesRequest, PresentValuesResponse, request, fields)
-
     @staticmethod
     def _stored_basis(basis_id: str) -> _Call:
         return _Call("GET", "/v1/bases/" + quote(basis_id, safe=""), StoredBasisDetail)
+
+    @staticmethod
+    def _basis_version(basis_id: str, fingerprint: str) -> _Call:
+        return _Call(
+            "GET",
+            f"/v1/bases/{quote(basis_id, safe='')}/versions/{quote(fingerprint, safe=':')}",
+            StoredBasisDetail,
+        )
 
     _BASES = _Call("GET", "/v1/bases", StoredBasesResponse)
     _LAWS = _Call("GET", "/v1/laws", LawsResponse)
@@ -309,13 +355,9 @@ class _Base:
 class LifetimeClient(_Base):
     """Synchronous client. Use as a context manager, or call ``close()``."""
 
-    def __init__(self, base_url: str = "http://127.0.0.1:8000", **options: Any):
-        transport = options.pop("transport", None)
-        super().__init__(base_url, **options)
-        self._http = httpx.Client(
-            base_url=self.base_url, timeout=self._timeout, headers=self._headers,
-            transport=transport,
-        )
+    def _open(self, transport: Any) -> httpx.Client:
+        return httpx.Client(base_url=self.base_url, timeout=self._timeout,
+                            headers=self._headers, transport=transport)
 
     def __enter__(self) -> LifetimeClient:
         return self
@@ -337,55 +379,72 @@ class LifetimeClient(_Base):
                     raise _unreachable(self.base_url, attempt + 1, exc) from exc
                 time.sleep(self._delay(attempt))
             except httpx.TransportError as exc:  # a timeout after sending, say: not retried
-                raise LifetimeServiceError(
-                    status=None, title="Request failed", detail=f"{type(exc).__name__}: {exc}",
-                    type="client/transport-error",
-                ) from exc
+                raise _failed(exc) from exc
         return _decode(call, response)
 
     # calculations
 
-    def survival(self, request: Union[SurvivalRequest, None] = None, **fields: Any) -> SurvivalResponse:
-        """POST /v1/survival: ₜp_x, ₜq_x, μ_{x+t} and f_x(t) at the durations ``t``."""
-        return self._send(self._survival(request, fields))
+    def survival(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                 t: Sequence[float], **unknown: Never) -> SurvivalResponse:
+        """POST /v1/survival: ₜp_x, ₜq_x, μ_{x+t} and f_x(t) at each duration ``t``."""
+        return self._send(_post(SurvivalRequest, {"basis": basis, "lives": lives, "t": t, **unknown}))
 
-    def deferred_death(
-        self, request: Union[DeferredDeathRequest, None] = None, **fields: Any
-    ) -> DeferredDeathResponse:
-        """POST /v1/deferred-death: u|ₜq_x for each ``deferral`` u (``period`` t)."""
-        return self._send(self._deferred_death(request, fields))
+    def deferred_death(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                       deferral: Sequence[float], period: float = 1.0,
+                       **unknown: Never) -> DeferredDeathResponse:
+        """POST /v1/deferred-death: u|ₜq_x for each ``deferral`` u (t = ``period``)."""
+        return self._send(_post(DeferredDeathRequest, {
+            "basis": basis, "lives": lives, "deferral": deferral, "period": period, **unknown}))
 
-    def expectation(
-        self, request: Union[ExpectationRequest, None] = None, **fields: Any
-    ) -> ExpectationResponse:
-        """POST /v1/expectation: e̊_x, e_x and their variances (temporary with ``term``)."""
-        return self._send(self._expectation(request, fields))
+    def expectation(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                    term: Union[int, None] = None, **unknown: Never) -> ExpectationResponse:
+        """POST /v1/expectation: e̊_x, e_x and their variances (of min(T, n) with ``term`` n)."""
+        return self._send(_post(ExpectationRequest, {
+            "basis": basis, "lives": lives, "term": term, **unknown}))
 
-    def moments(self, request: Union[MomentsRequest, None] = None, **fields: Any) -> MomentsResponse:
-        """POST /v1/moments: E[T_x^k] and E[K_x^k] for the ``orders`` k."""
-        return self._send(self._moments(request, fields))
+    def moments(self, basis: BasisArgument, lives: Sequence[LifeArgument], orders: Sequence[int],
+                term: Union[int, None] = None, **unknown: Never) -> MomentsResponse:
+        """POST /v1/moments: E[T_x^k] and E[K_x^k] for each of the ``orders`` k."""
+        return self._send(_post(MomentsRequest, {
+            "basis": basis, "lives": lives, "orders": orders, "term": term, **unknown}))
 
-    def quantiles(
-        self, request: Union[QuantilesRequest, None] = None, **fields: Any
-    ) -> QuantilesResponse:
-        """POST /v1/quantiles: quantiles of T_x and K_x for the ``probabilities``."""
-        return self._send(self._quantiles(request, fields))
+    def quantiles(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                  probabilities: Sequence[float], **unknown: Never) -> QuantilesResponse:
+        """POST /v1/quantiles: quantiles of T_x and K_x for each of the ``probabilities``."""
+        return self._send(_post(QuantilesRequest, {
+            "basis": basis, "lives": lives, "probabilities": probabilities, **unknown}))
 
-    def life_table(
-        self, request: Union[LifeTableRequest, None] = None, **fields: Any
-    ) -> LifeTableResponse:
-        """POST /v1/life-table: a derived life table for one life."""
-        return self._send(self._life_table(request, fields, csv=False))
+    def life_table(self, basis: BasisArgument, end_age: float, start_age: Union[float, None] = None,
+                   radix: float = 100_000.0, duration: float = 0.0,
+                   start_ages: Union[Sequence[float], None] = None,
+                   durations: Union[Sequence[float], None] = None,
+                   **unknown: Never) -> LifeTableResponse:
+        """POST /v1/life-table: a derived life table from ``start_age`` (or, for a status of
+        several lives, ``start_ages``) to ``end_age``."""
+        return self._send(_post(LifeTableRequest, _life_table_fields(
+            basis, end_age, start_age, radix, duration, start_ages, durations, unknown)))
 
-    def life_table_csv(self, request: Union[LifeTableRequest, None] = None, **fields: Any) -> str:
+    def life_table_csv(self, basis: BasisArgument, end_age: float,
+                       start_age: Union[float, None] = None, radix: float = 100_000.0,
+                       duration: float = 0.0, start_ages: Union[Sequence[float], None] = None,
+                       durations: Union[Sequence[float], None] = None,
+                       **unknown: Never) -> str:
         """POST /v1/life-table with ``Accept: text/csv``: the table as CSV text."""
-        return self._send(self._life_table(request, fields, csv=True))
+        return self._send(_post(LifeTableRequest, _life_table_fields(
+            basis, end_age, start_age, radix, duration, start_ages, durations, unknown),
+            accept="text/csv"))
 
-    def present_values(self, request: Any = None, **fields: Any) -> PresentValuesResponse:
-        """POST /v1/present-values: present values, their second moments and standard
-        deviations, and net premiums. The request (PresentValuesRequest or keyword arguments)
-        is checked before sending, like every calculation."""
-        return self._send(self._present_values(request, fields))
+    def present_values(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                       interest: InterestArgument, benefits: Sequence[BenefitArgument],
+                       **unknown: Never) -> PresentValuesResponse:
+        """POST /v1/present-values: per benefit, the expected present value, its second moment
+        and standard deviation, and the net premium when asked for."""
+        return self._send(_post(PresentValuesRequest, {
+            "basis": basis, "lives": lives, "interest": interest, "benefits": benefits, **unknown}))
+
+    def send(self, request: msgspec.Struct) -> Any:
+        """Send a request Struct built beforehand (a SurvivalRequest, …); its response Struct."""
+        return self._send(_prepared(request))
 
     # reading bases, operations
 
@@ -396,6 +455,11 @@ class LifetimeClient(_Base):
     def basis(self, basis_id: str) -> StoredBasisDetail:
         """GET /v1/bases/{id}: one stored basis with its definition in the inline form."""
         return self._send(self._stored_basis(basis_id))
+
+    def basis_version(self, basis_id: str, fingerprint: str) -> StoredBasisDetail:
+        """GET /v1/bases/{id}/versions/{fingerprint}: the version of a stored basis that had
+        this fingerprint, the current one or an earlier one kept beside it."""
+        return self._send(self._basis_version(basis_id, fingerprint))
 
     def laws(self) -> LawsResponse:
         """GET /v1/laws: every inline basis type with its parameters."""
@@ -427,13 +491,9 @@ class AsyncLifetimeClient(_Base):
     """Asynchronous client: the same methods as `LifetimeClient`, as coroutines. Use as an
     async context manager, or await ``aclose()``."""
 
-    def __init__(self, base_url: str = "http://127.0.0.1:8000", **options: Any):
-        transport = options.pop("transport", None)
-        super().__init__(base_url, **options)
-        self._http = httpx.AsyncClient(
-            base_url=self.base_url, timeout=self._timeout, headers=self._headers,
-            transport=transport,
-        )
+    def _open(self, transport: Any) -> httpx.AsyncClient:
+        return httpx.AsyncClient(base_url=self.base_url, timeout=self._timeout,
+                                 headers=self._headers, transport=transport)
 
     async def __aenter__(self) -> AsyncLifetimeClient:
         return self
@@ -455,55 +515,72 @@ class AsyncLifetimeClient(_Base):
                     raise _unreachable(self.base_url, attempt + 1, exc) from exc
                 await asyncio.sleep(self._delay(attempt))
             except httpx.TransportError as exc:
-                raise LifetimeServiceError(
-                    status=None, title="Request failed", detail=f"{type(exc).__name__}: {exc}",
-                    type="client/transport-error",
-                ) from exc
+                raise _failed(exc) from exc
         return _decode(call, response)
 
-    async def survival(
-        self, request: Union[SurvivalRequest, None] = None, **fields: Any
-    ) -> SurvivalResponse:
-        return await self._send(self._survival(request, fields))
+    async def survival(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                       t: Sequence[float], **unknown: Never) -> SurvivalResponse:
+        return await self._send(_post(SurvivalRequest, {
+            "basis": basis, "lives": lives, "t": t, **unknown}))
 
-    async def deferred_death(
-        self, request: Union[DeferredDeathRequest, None] = None, **fields: Any
-    ) -> DeferredDeathResponse:
-        return await self._send(self._deferred_death(request, fields))
+    async def deferred_death(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                             deferral: Sequence[float], period: float = 1.0,
+                             **unknown: Never) -> DeferredDeathResponse:
+        return await self._send(_post(DeferredDeathRequest, {
+            "basis": basis, "lives": lives, "deferral": deferral, "period": period, **unknown}))
 
-    async def expectation(
-        self, request: Union[ExpectationRequest, None] = None, **fields: Any
-    ) -> ExpectationResponse:
-        return await self._send(self._expectation(request, fields))
+    async def expectation(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                          term: Union[int, None] = None,
+                          **unknown: Never) -> ExpectationResponse:
+        return await self._send(_post(ExpectationRequest, {
+            "basis": basis, "lives": lives, "term": term, **unknown}))
 
-    async def moments(
-        self, request: Union[MomentsRequest, None] = None, **fields: Any
-    ) -> MomentsResponse:
-        return await self._send(self._moments(request, fields))
+    async def moments(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                      orders: Sequence[int], term: Union[int, None] = None,
+                      **unknown: Never) -> MomentsResponse:
+        return await self._send(_post(MomentsRequest, {
+            "basis": basis, "lives": lives, "orders": orders, "term": term, **unknown}))
 
-    async def quantiles(
-        self, request: Union[QuantilesRequest, None] = None, **fields: Any
-    ) -> QuantilesResponse:
-        return await self._send(self._quantiles(request, fields))
+    async def quantiles(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                        probabilities: Sequence[float], **unknown: Never) -> QuantilesResponse:
+        return await self._send(_post(QuantilesRequest, {
+            "basis": basis, "lives": lives, "probabilities": probabilities, **unknown}))
 
-    async def life_table(
-        self, request: Union[LifeTableRequest, None] = None, **fields: Any
-    ) -> LifeTableResponse:
-        return await self._send(self._life_table(request, fields, csv=False))
+    async def life_table(self, basis: BasisArgument, end_age: float,
+                         start_age: Union[float, None] = None, radix: float = 100_000.0,
+                         duration: float = 0.0, start_ages: Union[Sequence[float], None] = None,
+                         durations: Union[Sequence[float], None] = None,
+                         **unknown: Never) -> LifeTableResponse:
+        return await self._send(_post(LifeTableRequest, _life_table_fields(
+            basis, end_age, start_age, radix, duration, start_ages, durations, unknown)))
 
-    async def life_table_csv(
-        self, request: Union[LifeTableRequest, None] = None, **fields: Any
-    ) -> str:
-        return await self._send(self._life_table(request, fields, csv=True))
+    async def life_table_csv(self, basis: BasisArgument, end_age: float,
+                             start_age: Union[float, None] = None, radix: float = 100_000.0,
+                             duration: float = 0.0,
+                             start_ages: Union[Sequence[float], None] = None,
+                             durations: Union[Sequence[float], None] = None,
+                             **unknown: Never) -> str:
+        return await self._send(_post(LifeTableRequest, _life_table_fields(
+            basis, end_age, start_age, radix, duration, start_ages, durations, unknown),
+            accept="text/csv"))
 
-    async def present_values(self, request: Any = None, **fields: Any) -> PresentValuesResponse:
-        return await self._send(self._present_values(request, fields))
+    async def present_values(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                             interest: InterestArgument, benefits: Sequence[BenefitArgument],
+                             **unknown: Never) -> PresentValuesResponse:
+        return await self._send(_post(PresentValuesRequest, {
+            "basis": basis, "lives": lives, "interest": interest, "benefits": benefits, **unknown}))
+
+    async def send(self, request: msgspec.Struct) -> Any:
+        return await self._send(_prepared(request))
 
     async def bases(self) -> StoredBasesResponse:
         return await self._send(self._BASES)
 
     async def basis(self, basis_id: str) -> StoredBasisDetail:
         return await self._send(self._stored_basis(basis_id))
+
+    async def basis_version(self, basis_id: str, fingerprint: str) -> StoredBasisDetail:
+        return await self._send(self._basis_version(basis_id, fingerprint))
 
     async def laws(self) -> LawsResponse:
         return await self._send(self._LAWS)

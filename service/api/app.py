@@ -13,6 +13,8 @@ from service.settings import Settings, from_environment
 
 from .bases import bases_handlers
 from .calculations import REQUEST_TYPES, calculation_handlers
+from .conventions import errors_as_problems, head_as_get, negotiate
+from .docs import docs_handlers
 from .observability import Metrics, observe
 from .openapi import add_request_bodies, openapi_config
 from .operations import operations_handlers
@@ -58,7 +60,9 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
             *present_value_handlers(settings, catalogue),
             *bases_handlers(catalogue),
             *operations_handlers(catalogue, metrics),
+            *docs_handlers(),
         ],
+        before_request=negotiate,
         exception_handlers=EXCEPTION_HANDLERS,  # type: ignore[arg-type]
         on_startup=[catalogue.load, _freeze_startup_objects],
         openapi_config=openapi_config(),
@@ -78,7 +82,9 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
     async def call_litestar(scope: Any, receive: Any, send: Any) -> None:
         await parent_call(app, scope, receive, send)
 
-    app._observed = observe(require_token(call_litestar, settings.auth_token), metrics)
+    app._observed = observe(
+        require_token(head_as_get(errors_as_problems(call_litestar)), settings.auth_token), metrics
+    )
     return app
 
 

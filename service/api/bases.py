@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import hashlib
 from typing import Any
 
 import msgspec
@@ -13,6 +14,8 @@ from service.bases.definitions import BASIS_KINDS, CROSS_FIELD_RULES, kind_of
 
 from . import schemas as s
 from .calculations import _error_response
+from .conventions import chosen_media_type
+from .tabular import CSV_MEDIA_TYPE, records_csv
 
 BASES_TAG = "bases"
 
@@ -28,6 +31,33 @@ def _detail(basis: StoredBasis) -> s.StoredBasisDetail:
         fingerprint=basis.fingerprint,
         definition=basis.definition,  # type: ignore[arg-type]
     )
+
+
+def _body_and_etag(basis: StoredBasis) -> tuple[bytes, str]:
+    """The JSON body of one stored basis and its ETag: the SHA-256 of that body, so the tag
+    changes when anything the answer carries changes (a title, a description, a version), not
+    only the definition."""
+    body = _ENCODE(_detail(basis))
+    return body, '"sha256:' + hashlib.sha256(body).hexdigest() + '"'
+
+
+_ENCODE = msgspec.json.Encoder().encode
+
+
+def _conditional(request: Request[Any, Any, Any], basis: StoredBasis) -> Response[bytes]:
+    """The basis as JSON, or 304 when If-None-Match names its ETag."""
+    body, etag = _body_and_etag(basis)
+    headers = {"ETag": etag, "Cache-Control": "no-cache"}
+    if etag_matches(request.headers.get("if-none-match"), etag.strip('"')):
+        return Response(content=b"", status_code=304, headers=headers)
+    return Response(content=body, media_type="application/json", headers=headers)
+
+
+def _listing(request: Request[Any, Any, Any], answer: Any, field: str) -> Any:
+    """A list answer as JSON, or its records as CSV when the request asked for it."""
+    if chosen_media_type(request) == CSV_MEDIA_TYPE:
+        return Response(records_csv(getattr(answer, field)), media_type=CSV_MEDIA_TYPE)
+    return answer
 
 
 def etag_matches(if_none_match: str | None, etag: str) -> bool:
@@ -146,11 +176,13 @@ def describe_laws() -> s.LawsResponse:
 def bases_handlers(catalogue: Catalogue) -> list[Any]:
     laws_answer = describe_laws()
     common: dict[str, Any] = {"sync_to_thread": False, "tags": [BASES_TAG]}
+    listing: dict[str, Any] = {**common, "opt": {"produces": ["application/json", CSV_MEDIA_TYPE]}}
 
-    @get("/v1/bases", operation_id="listBases", summary="The stored bases", **common)
-    def list_bases() -> s.StoredBasesResponse:
-        """Every stored basis with its id, title, type, source and fingerprint."""
-        return s.StoredBasesResponse(
+    @get("/v1/bases", operation_id="listBases", summary="The stored bases", **listing)
+    def list_bases(request: Request[Any, Any, Any]) -> s.StoredBasesResponse:
+        """Every stored basis with its id, title, type, source and fingerprint (one row each
+        with Accept: text/csv)."""
+        return _listing(request, s.StoredBasesResponse(
             bases=[
                 s.StoredBasisSummary(
                     id=b.id,
@@ -161,7 +193,7 @@ def bases_handlers(catalogue: Catalogue) -> list[Any]:
                 )
                 for b in catalogue.stored()
             ]
-        )
+        ), "bases")
 
     @get(
         "/v1/bases/{basis_id:str}",
@@ -177,17 +209,55 @@ def bases_handlers(catalogue: Catalogue) -> list[Any]:
     ) -> Response[s.StoredBasisDetail]:
         """The basis's metadata and its definition, exactly as it can be sent inline.
 
-        The ETag is the fingerprint; a request with a matching If-None-Match gets 304.
+        The ETag is the SHA-256 of the answer's body (it changes when anything in the answer
+        changes); a request with a matching If-None-Match gets 304.
         """
-        basis = catalogue.get(basis_id)
-        headers = {"ETag": f'"{basis.fingerprint}"', "Cache-Control": "no-cache"}
-        if etag_matches(request.headers.get("if-none-match"), basis.fingerprint):
-            return Response(content=b"", status_code=304, headers=headers)
-        return Response(_detail(basis), headers=headers)
+        return _conditional(request, catalogue.get(basis_id))
+
+    @get(
+        "/v1/bases/{basis_id:str}/versions",
+        operation_id="listBasisVersions",
+        summary="Every version of a stored basis: the current one and those kept beside it",
+        responses={404: _error_response("No stored basis has this id.")},
+        **listing,
+    )
+    def list_versions(
+        request: Request[Any, Any, Any], basis_id: FromPath[str]
+    ) -> s.BasisVersionsResponse:
+        """The current version first, then earlier ones (newest first), each with its
+        fingerprint: fetch one with GET /v1/bases/{id}/versions/{fingerprint}. One row each
+        with Accept: text/csv."""
+        versions = catalogue.versions(basis_id)
+        return _listing(request, s.BasisVersionsResponse(
+            id=basis_id,
+            versions=[
+                s.BasisVersion(version=b.version, title=b.title, fingerprint=b.fingerprint,
+                               current=i == 0)
+                for i, b in enumerate(versions)
+            ],
+        ), "versions")
+
+    @get(
+        "/v1/bases/{basis_id:str}/versions/{fingerprint:str}",
+        operation_id="getBasisVersion",
+        summary="One version of a stored basis, by its fingerprint",
+        responses={
+            404: _error_response("No stored basis has this id, or none of its versions this "
+                                 "fingerprint."),
+        },
+        **common,
+    )
+    def get_version(
+        request: Request[Any, Any, Any], basis_id: FromPath[str], fingerprint: FromPath[str]
+    ) -> Response[s.StoredBasisDetail]:
+        """The version of the basis whose definition had this fingerprint (as an answer's
+        `basis.fingerprint` records it), in the same form as GET /v1/bases/{id}: send its
+        definition inline to reproduce an answer made on it."""
+        return _conditional(request, catalogue.version(basis_id, fingerprint))
 
     @get("/v1/laws", operation_id="listLaws", summary="The inline basis types and their parameters", **common)
     def laws() -> s.LawsResponse:
         """Each inline `type` with its parameters, their domains and a one-line definition."""
         return laws_answer
 
-    return [list_bases, get_basis, laws]
+    return [list_bases, get_basis, list_versions, get_version, laws]

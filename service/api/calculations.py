@@ -28,12 +28,15 @@ from litestar.openapi.datastructures import ResponseSpec
 from service.bases.catalogue import Catalogue, ResolvedBasis
 from service.core.errors import DomainError
 from service.settings import Settings
-from service.version import __version__
+from service.version import service_version
 
+from . import audit
 from . import schemas as s
 from .body import decode, read_body
+from .conventions import chosen_media_type
 from .lives import several_lives
 from .problems import PROBLEM_MEDIA_TYPE, Problem, bad_field, domain_problem
+from .tabular import CSV_MEDIA_TYPE, cell, results_csv
 
 T = TypeVar("T")
 
@@ -43,6 +46,9 @@ OFFLOAD_VALUES = 20_000
 STATUS_ROW_WORK = 1_000
 
 CALCULATION_TAG = "calculations"
+
+#: the media types every calculation answers with, JSON first (the default)
+CALCULATION_TYPES = ["application/json", CSV_MEDIA_TYPE]
 
 _DECODERS = {
     cls: msgspec.json.Decoder(cls)
@@ -77,8 +83,11 @@ def _error_response(description: str) -> ResponseSpec:
 
 
 ERROR_RESPONSES = {
-    400: _error_response("The body is not JSON or does not fit the schema."),
+    400: _error_response(
+        "The body is not JSON or does not fit the schema, or the Accept header is not valid."
+    ),
     404: _error_response("`basis` names no stored basis."),
+    406: _error_response("The Accept header rules out both application/json and text/csv."),
     413: _error_response("The body is larger than max_body_bytes."),
     415: _error_response("The body is not application/json."),
     422: _error_response(
@@ -86,6 +95,14 @@ ERROR_RESPONSES = {
         "limiting age, a table that does not close, too many lives or durations."
     ),
     503: _error_response("The service is still loading its stored bases."),
+}
+
+
+CALCULATION_ROUTE: dict[str, Any] = {
+    "status_code": 200,
+    "tags": [CALCULATION_TAG],
+    "responses": ERROR_RESPONSES,
+    "opt": {"produces": CALCULATION_TYPES},
 }
 
 
@@ -164,6 +181,34 @@ class Calculations:
             )
 
     @staticmethod
+    def stamp(request: Request[Any, Any, Any], req: Any, basis: ResolvedBasis) -> dict[str, Any]:
+        """The fields every calculation answer starts with: the basis, the service version
+        and the calculation fingerprint (see audit.py)."""
+        return {
+            "basis": _reference(basis),
+            "service_version": service_version(),
+            "calculation_fingerprint": audit.record(
+                request.scope, request.scope["path"], req, basis.fingerprint
+            ),
+        }
+
+    @staticmethod
+    def respond(
+        request: Request[Any, Any, Any],
+        answer: Any,
+        along: str | None = None,
+        along_values: Iterable[Any] = (),
+    ) -> Any:
+        """``answer`` as JSON, or as CSV (tabular.py) when the request asked for it."""
+        if chosen_media_type(request) == CSV_MEDIA_TYPE:
+            return Response(
+                content=results_csv(answer.results, along, list(along_values)),
+                media_type=CSV_MEDIA_TYPE,
+                headers={"X-Basis-Fingerprint": answer.basis.fingerprint},
+            )
+        return answer
+
+    @staticmethod
     async def run(work: Callable[[], T], size: int) -> T:
         if size > OFFLOAD_VALUES:
             return await anyio.to_thread.run_sync(work)
@@ -186,11 +231,7 @@ def _reference(basis: ResolvedBasis) -> s.BasisReference:
 
 def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
     calc = Calculations(settings, catalogue)
-    common: dict[str, Any] = {
-        "status_code": 200,
-        "tags": [CALCULATION_TAG],
-        "responses": ERROR_RESPONSES,
-    }
+    common: dict[str, Any] = CALCULATION_ROUTE
 
     @post("/v1/survival", operation_id="survival", summary="Survival, death, force and density at durations t", **common)
     async def survival(request: Request[Any, Any, Any]) -> s.SurvivalResponse:
@@ -218,7 +259,8 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 _values(density),
             )
         ]
-        return s.SurvivalResponse(_reference(basis), __version__, results)
+        answer = s.SurvivalResponse(results=results, **calc.stamp(request, req, basis))
+        return calc.respond(request, answer, "t", req.t)
 
     @post("/v1/deferred-death", operation_id="deferredDeath", summary="Deferred death probabilities u|ₜq_x", **common)
     async def deferred_death(request: Request[Any, Any, Any]) -> s.DeferredDeathResponse:
@@ -238,7 +280,8 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
             s.DeferredDeathResult(age=a, duration=d, ages=aa, durations=dd, probability=p)
             for a, d, aa, dd, p in zip(*_echo_columns(age, duration), _values(values))
         ]
-        return s.DeferredDeathResponse(_reference(basis), __version__, results)
+        answer = s.DeferredDeathResponse(results=results, **calc.stamp(request, req, basis))
+        return calc.respond(request, answer, "deferral", req.deferral)
 
     @post("/v1/expectation", operation_id="expectation", summary="Expectations of life and their variances", **common)
     async def expectation(request: Request[Any, Any, Any]) -> s.ExpectationResponse:
@@ -271,7 +314,8 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 _values(curtate_var),
             )
         ]
-        return s.ExpectationResponse(_reference(basis), __version__, results)
+        answer = s.ExpectationResponse(results=results, **calc.stamp(request, req, basis))
+        return calc.respond(request, answer)
 
     @post("/v1/moments", operation_id="moments", summary="Raw moments of T_x and K_x", **common)
     async def moments(request: Request[Any, Any, Any]) -> s.MomentsResponse:
@@ -302,7 +346,8 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 *_echo_columns(age, duration), _values(complete), _values(curtate)
             )
         ]
-        return s.MomentsResponse(_reference(basis), __version__, results)
+        answer = s.MomentsResponse(results=results, **calc.stamp(request, req, basis))
+        return calc.respond(request, answer, "order", orders)
 
     @post("/v1/quantiles", operation_id="quantiles", summary="Quantiles of T_x and K_x", **common)
     async def quantiles(request: Request[Any, Any, Any]) -> s.QuantilesResponse:
@@ -327,7 +372,8 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 *_echo_columns(age, duration), _values(complete), _values(curtate)
             )
         ]
-        return s.QuantilesResponse(_reference(basis), __version__, results)
+        answer = s.QuantilesResponse(results=results, **calc.stamp(request, req, basis))
+        return calc.respond(request, answer, "probability", req.probabilities)
 
     @post(
         "/v1/life-table",
@@ -369,14 +415,11 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
             )
         except DomainError as exc:
             raise _life_table_problem(exc) from None
-        as_csv = (
-            request.accept.best_match(["application/json", "text/csv"], "application/json")
-            == "text/csv"
-        )
-        if as_csv:
+        stamp = calc.stamp(request, req, basis)
+        if chosen_media_type(request) == CSV_MEDIA_TYPE:
             return Response(
                 content=_csv(table),
-                media_type="text/csv",
+                media_type=CSV_MEDIA_TYPE,
                 headers={"X-Basis-Fingerprint": basis.fingerprint},
             )
         result = s.LifeTableResult(
@@ -392,7 +435,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
             complete=_values(table["complete"]),
             curtate=_values(table["curtate"]),
         )
-        return Response(s.LifeTableResponse(_reference(basis), __version__, [result]))
+        return Response(s.LifeTableResponse(results=[result], **stamp))
 
     return [survival, deferred_death, expectation, moments, quantiles, life_table]
 
@@ -468,7 +511,5 @@ def _csv(table: dict[str, np.ndarray]) -> bytes:
     columns[:0] = ages.reshape(ages.shape[0], -1).T.tolist()
     writer.writerow(header)
     for row in zip(*columns):
-        writer.writerow(
-            ["" if (v != v or v in (float("inf"), float("-inf"))) else repr(v) for v in row]
-        )
+        writer.writerow([cell(v) for v in row])
     return out.getvalue().encode("utf-8")

@@ -28,6 +28,7 @@ from .security import security_headers
 access_log = logging.getLogger("service.access")
 
 REQUEST_ID_HEADER = b"x-request-id"
+CALCULATION_HEADER = b"x-calculation-fingerprint"
 _REQUEST_ID = re.compile(rb"^[A-Za-z0-9._:\-]{1,128}$")
 
 Scope = MutableMapping[str, Any]
@@ -138,6 +139,9 @@ def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
                     list(message.get("headers", [])), status, scope.get("path", "")
                 )
                 headers.append((REQUEST_ID_HEADER, request_id.encode("ascii")))
+                calculation = state.get("calculation_fingerprint")
+                if calculation:
+                    headers.append((CALCULATION_HEADER, calculation.encode("ascii")))
                 message = {**message, "headers": headers}
             await send(message)
 
@@ -164,6 +168,9 @@ def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
                 fingerprint = state.get("basis_fingerprint")
                 if fingerprint:
                     record["basis_fingerprint"] = fingerprint
+                calculation = state.get("calculation_fingerprint")
+                if calculation:
+                    record["calculation_fingerprint"] = calculation
                 access_log.info(encode(record).decode())
 
     return observed

@@ -1,8 +1,7 @@
 """The OpenAPI document: configuration, the request bodies, and the committed copy.
 
-The service serves the document at ``/schema/openapi.json`` (and an interactive page at
-``/schema``, Swagger UI, whose scripts load from a public CDN: without network access the page
-stays blank, while the JSON document itself is always served). The same document is committed
+The service serves the document at ``/schema/openapi.json`` and an interactive page at
+``/schema`` (Swagger UI, every file of it served by the service itself: see docs.py). The same document is committed
 at ``openapi/openapi.json``; regenerate it with
 
     python -m service.api.openapi > openapi/openapi.json     (or: --write)
@@ -25,21 +24,32 @@ from typing import Any
 import msgspec
 from litestar import Litestar
 from litestar.openapi import OpenAPIConfig
-from litestar.openapi.plugins import JsonRenderPlugin, SwaggerRenderPlugin
+from litestar.openapi.plugins import JsonRenderPlugin
 from litestar.openapi.spec import Components, OpenAPIMediaType, RequestBody, Tag
 
 from service.version import __version__
 
+from .docs import render_plugin
+
 CAUTION = (
-    "The distribution of future lifetime on a mortality basis: survival and death "
-    "probabilities, the force of mortality, deferred death probabilities, expectations of "
-    "life, moments, quantiles and derived life tables, for stored bases or bases sent inline."
+    "Life-contingency calculations for quote systems and internal tools, on a mortality basis "
+    "(a stored basis, or a law or table sent inline): the distribution of future lifetime "
+    "(survival and death probabilities, the force of mortality, deferred death probabilities, "
+    "complete and curtate expectations of life with their variances and higher moments, "
+    "quantiles, derived life tables); present values of life annuities, insurances, pure "
+    "endowments and endowments at interest, with their second moments and net level "
+    "premiums; ratings (age shifts, multiples of q or of the force, extra mortality), "
+    "generational mortality improvement, and several lives (joint-life and last-survivor "
+    "statuses)."
     "\n\n"
     "**Caution.** Every result depends on the basis chosen, and a basis is an assumption about "
     "future mortality, not a fact. The results are not actuarial advice. Decisions that rest "
     "on them are for the responsible actuary, who should apply the professional standards and "
     "the regulation that govern their work where they practise."
     "\n\n"
+    "Every calculation answer names its basis and that basis's fingerprint, the build that "
+    "answered (`service_version`) and a `calculation_fingerprint` over the whole question. "
+    "Calculations answer JSON, or CSV with `Accept: text/csv`. "
     "Errors are `application/problem+json` (RFC 9457) with `errors: [{field, message}]` "
     "naming each field at fault by its JSON path (`$.basis.c`, `$.lives[3].age`)."
 )
@@ -61,7 +71,7 @@ def openapi_config() -> OpenAPIConfig:
         tags=TAGS,
         path="/schema",
         render_plugins=[
-            SwaggerRenderPlugin(path="/swagger"),
+            render_plugin(),
             JsonRenderPlugin(path="/openapi.json"),
         ],
         components=Components(),
@@ -87,17 +97,31 @@ def add_request_bodies(app: Litestar, request_types: dict[str, type[msgspec.Stru
             required=True,
             description=(struct.__doc__ or "").strip().splitlines()[0],
         )
-    life_table = document.paths["/v1/life-table"].post
-    assert life_table is not None and life_table.responses is not None
-    ok = life_table.responses["200"]
-    if getattr(ok, "content", None) is not None:
-        ok.content["text/csv"] = OpenAPIMediaType(  # type: ignore[index]
-            schema={  # type: ignore[arg-type]
-                "type": "string",
-                "description": "the same columns as CSV, with a header row "
-                "age,l,d,q,complete,curtate; a value that does not exist is empty",
-            }
-        )
+    listings = [("/v1/bases", "get"), ("/v1/bases/{basis_id}/versions", "get")]
+    for path, method in [(p, "post") for p in request_types] + listings:  # CSV too (tabular.py)
+        operation = getattr(document.paths[path], method)
+        assert operation is not None and operation.responses is not None
+        ok = operation.responses["200"]
+        if getattr(ok, "content", None) is not None:
+            ok.content["text/csv"] = OpenAPIMediaType(  # type: ignore[index]
+                schema={"type": "string", "description": CSV_DESCRIPTIONS.get(path, CSV_ROWS)}  # type: ignore[arg-type]
+            )
+
+
+CSV_ROWS = (
+    "with Accept: text/csv, the same results as CSV: a header row, then one row per life (and "
+    "per value of the argument the results follow: t, deferral, order, probability or "
+    "benefit), the life's age and duration first; a value that does not exist is empty"
+)
+CSV_DESCRIPTIONS = {
+    "/v1/bases": "with Accept: text/csv, one row per stored basis: id,title,type,source,"
+    "fingerprint",
+    "/v1/bases/{basis_id}/versions": "with Accept: text/csv, one row per version: version,"
+    "title,fingerprint,current",
+    "/v1/life-table": "with Accept: text/csv, the same columns as CSV, with a header row "
+    "age,l,d,q,complete,curtate (age_0, age_1, … for a status); a value that does not exist "
+    "is empty",
+}
 
 
 def document_json(app: Litestar) -> str:

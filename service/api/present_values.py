@@ -21,10 +21,9 @@ from service.bases.catalogue import Catalogue
 from service.core import values as pv
 from service.core.errors import DomainError
 from service.settings import Settings
-from service.version import __version__
 
 from .body import decode, read_body
-from .calculations import CALCULATION_TAG, ERROR_RESPONSES, Calculations, _echo_columns, _reference
+from .calculations import CALCULATION_ROUTE, Calculations, _echo_columns
 from .problems import bad_field, domain_problem
 from .value_schemas import (
     MAX_WORK,
@@ -82,7 +81,7 @@ def present_value_handlers(settings: Settings, catalogue: Catalogue) -> list[Any
 
     @post("/v1/present-values", operation_id="presentValues",
           summary="Present values of annuities and insurances, their variances and premiums",
-          status_code=200, tags=[CALCULATION_TAG], responses=ERROR_RESPONSES)
+          **CALCULATION_ROUTE)
     async def present_values(request: Request[Any, Any, Any]) -> PresentValuesResponse:
         """For each life and benefit: E[PV], E[PV²] and the standard deviation per unit, and
         the net level annual premium when asked for."""
@@ -127,6 +126,7 @@ def present_value_handlers(settings: Settings, catalogue: Catalogue) -> list[Any
             results.append(
                 PresentValuesResult(age=a, duration=d, ages=aa, durations=dd, benefits=items)
             )
-        return PresentValuesResponse(_reference(basis), __version__, results)
+        answer = PresentValuesResponse(results=results, **calc.stamp(request, req, basis))
+        return calc.respond(request, answer, "benefit", range(len(req.benefits)))
 
     return [present_values]

@@ -15,7 +15,11 @@ from litestar import Request, Response
 from litestar.exceptions import HTTPException
 from litestar.plugins.problem_details import ProblemDetailsException
 
-from service.bases.catalogue import CatalogueNotReadyError, UnknownBasisError
+from service.bases.catalogue import (
+    CatalogueNotReadyError,
+    UnknownBasisError,
+    UnknownBasisVersionError,
+)
 from service.bases.validation import field_error
 from service.core.errors import DomainError
 
@@ -44,10 +48,34 @@ PROBLEM_KINDS: dict[str, tuple[int, str, str]] = {
         "Unknown stored basis",
         "No stored basis has this id. GET /v1/bases lists them.",
     ),
+    "unknown-basis-version": (
+        404,
+        "Unknown version of a stored basis",
+        "None of the versions of this stored basis has this fingerprint. "
+        "GET /v1/bases/{id}/versions lists them.",
+    ),
     "method-not-allowed": (
         405,
         "Method not allowed",
         "This path does not answer this HTTP method.",
+    ),
+    "not-acceptable": (
+        406,
+        "Not acceptable",
+        "The Accept header rules out every media type this resource answers with. Each "
+        "resource lists its media types in the OpenAPI document.",
+    ),
+    "invalid-http": (
+        400,
+        "Not an HTTP request",
+        "The server could not read the request as HTTP/1.1 (a malformed request line or "
+        "header); it closes the connection after this answer.",
+    ),
+    "invalid-header": (
+        400,
+        "Header not valid",
+        "A request header does not have the syntax HTTP gives it (RFC 9110); the detail "
+        "names the header and what is wrong.",
     ),
     "body-too-large": (
         413,
@@ -135,7 +163,8 @@ def from_decode_error(exc: msgspec.DecodeError) -> Problem:
 # ---- rendering and exception handlers -------------------------------------------------------
 
 
-def render(problem: ProblemDetailsException) -> Response[Any]:
+def problem_body(problem: ProblemDetailsException) -> dict[str, Any]:
+    """The problem+json fields of an error."""
     body: dict[str, Any] = {
         "type": problem.type_ or "/problems/http-error",
         "title": problem.title or "Error",
@@ -145,6 +174,11 @@ def render(problem: ProblemDetailsException) -> Response[Any]:
     extra = problem.extra
     if isinstance(extra, dict) and extra.get("errors"):
         body["errors"] = extra["errors"]
+    return body
+
+
+def render(problem: ProblemDetailsException) -> Response[Any]:
+    body = problem_body(problem)
     headers = dict(problem.headers or {})
     headers["Cache-Control"] = "no-store"
     return Response(
@@ -168,6 +202,8 @@ def handle_http_exception(request: Request, exc: HTTPException) -> Response[Any]
             f"{request.method} is not allowed at {request.url.path}",
             headers=headers,
         )
+    elif status == 406:
+        problem = Problem("not-acceptable", str(exc.detail), headers=headers)
     elif status == 413:
         problem = Problem("body-too-large", "the request body is too large", headers=headers)
     elif status == 415:
@@ -191,6 +227,16 @@ def handle_unknown_basis(request: Request, exc: UnknownBasisError) -> Response[A
             [("$.basis", f"unknown stored basis id {exc.basis_id!r}")]
             if request.method == "POST"
             else None,
+        )
+    )
+
+
+def handle_unknown_version(request: Request, exc: UnknownBasisVersionError) -> Response[Any]:
+    return render(
+        Problem(
+            "unknown-basis-version",
+            f"no version of the stored basis {exc.basis_id!r} has the fingerprint "
+            f"{exc.fingerprint!r}; GET /v1/bases/{exc.basis_id}/versions lists them",
         )
     )
 
@@ -222,6 +268,7 @@ EXCEPTION_HANDLERS = {
     HTTPException: handle_http_exception,
     DomainError: handle_domain_error,
     UnknownBasisError: handle_unknown_basis,
+    UnknownBasisVersionError: handle_unknown_version,
     CatalogueNotReadyError: handle_not_ready,
     Exception: handle_unexpected,
 }

@@ -336,43 +336,65 @@ class LifeTableResult(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=T
     curtate: Annotated[Values, Meta(description="e_x")]
 
 
-ServiceVersion = Annotated[str, Meta(description="the version of the service that answered")]
+ServiceVersion = Annotated[
+    str,
+    Meta(
+        description="the build of the service that answered: its version and, where built "
+        "from a checkout, the commit (0.1.0+g<12 hex digits>, .dirty when it had uncommitted "
+        "changes)"
+    ),
+]
+CalculationFingerprint = Annotated[
+    str,
+    Meta(
+        pattern="^sha256:[0-9a-f]{64}$",
+        description="SHA-256 of the whole calculation: the endpoint, every argument (defaults "
+        "filled in), the basis fingerprint and the service version, as canonical JSON (see "
+        "the README); equal fingerprints mean the same question answered by the same build",
+    ),
+]
 
 
 class SurvivalResponse(msgspec.Struct, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[SurvivalResult]
+    calculation_fingerprint: CalculationFingerprint
 
 
 class DeferredDeathResponse(msgspec.Struct, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[DeferredDeathResult]
+    calculation_fingerprint: CalculationFingerprint
 
 
 class ExpectationResponse(msgspec.Struct, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[ExpectationResult]
+    calculation_fingerprint: CalculationFingerprint
 
 
 class MomentsResponse(msgspec.Struct, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[MomentsResult]
+    calculation_fingerprint: CalculationFingerprint
 
 
 class QuantilesResponse(msgspec.Struct, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[QuantilesResult]
+    calculation_fingerprint: CalculationFingerprint
 
 
 class LifeTableResponse(msgspec.Struct, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[LifeTableResult]
+    calculation_fingerprint: CalculationFingerprint
 
 
 # ---- reading bases -------------------------------------------------------------------------
@@ -401,6 +423,21 @@ class StoredBasisDetail(msgspec.Struct, frozen=True):
     definition: Annotated[
         Basis,
         Meta(description="the definition in exactly the inline form: send it as `basis`"),
+    ]
+
+
+class BasisVersion(msgspec.Struct, frozen=True):
+    version: str
+    title: str
+    fingerprint: Annotated[str, Meta(description="fetch it at /v1/bases/{id}/versions/{fingerprint}")]
+    current: Annotated[bool, Meta(description="whether this is the version in use")]
+
+
+class BasisVersionsResponse(msgspec.Struct, frozen=True):
+    id: str
+    versions: Annotated[
+        list[BasisVersion],
+        Meta(description="the current version first, then the earlier ones kept beside it"),
     ]
 
 

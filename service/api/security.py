@@ -52,10 +52,10 @@ EXEMPT_PREFIXES = ("/problems/",)
 DOCS_PAGE_PREFIX = "/schema"
 
 JSON_CSP = b"default-src 'none'; frame-ancestors 'none'"
+#: the docs page loads everything from the service itself (docs.py), nothing from elsewhere
 DOCS_CSP = (
-    b"default-src 'none'; script-src 'self' 'unsafe-inline' https://cdn.jsdelivr.net; "
-    b"style-src 'self' 'unsafe-inline' https://cdn.jsdelivr.net; img-src 'self' data: "
-    b"https://cdn.jsdelivr.net; connect-src 'self'; frame-ancestors 'none'"
+    b"default-src 'none'; script-src 'self' 'unsafe-inline'; style-src 'self' 'unsafe-inline'; "
+    b"img-src 'self' data:; connect-src 'self'; frame-ancestors 'none'"
 )
 
 _COMMON_HEADERS: tuple[tuple[bytes, bytes], ...] = (
@@ -172,7 +172,10 @@ def cors_config(origins: str) -> CORSConfig | None:
         allow_origins=allowed,
         allow_methods=["GET", "POST", "OPTIONS"],
         allow_headers=["Authorization", "Content-Type", "Accept", "If-None-Match", "X-Request-ID"],
-        expose_headers=["ETag", "X-Request-ID", "X-Basis-Fingerprint", "WWW-Authenticate"],
+        expose_headers=[
+            "ETag", "X-Request-ID", "X-Basis-Fingerprint", "X-Calculation-Fingerprint",
+            "WWW-Authenticate",
+        ],
         allow_credentials=False,
         max_age=600,
     )

@@ -157,6 +157,7 @@ class PresentValuesResponse(msgspec.Struct, frozen=True):
     basis: s.BasisReference
     service_version: s.ServiceVersion
     results: list[PresentValuesResult]
+    calculation_fingerprint: s.CalculationFingerprint
 
 
 REQUEST_TYPES: dict[str, type[msgspec.Struct]] = {"/v1/present-values": PresentValuesRequest}

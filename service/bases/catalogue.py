@@ -20,12 +20,20 @@ definition, so the definition served by ``GET /v1/bases/{id}`` is always the ful
   columns ``age,duration_0,duration_1,…,duration_<n−1>``, one row per selection age from
   ``start_age``; ``duration_k`` holds q_[x]+k.
 
+Earlier versions of a stored basis may be kept beside it, in a folder ``<id>.versions/``:
+one file per version, each a stored-basis file of the same ``id`` (its rates files in that
+folder). They are read, validated and compiled at start-up like the current file, then only
+their definitions are kept (no compiled model): ``GET /v1/bases/{id}/versions`` lists them and
+``GET /v1/bases/{id}/versions/{fingerprint}`` serves any version, current or earlier, so a quote
+made before the file changed can be reproduced by sending that definition inline.
+
 Every file is loaded, validated and compiled at start-up; the first problem stops the start
 with a ``BasisFileError`` naming the file and the field.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import threading
 from collections.abc import Iterable
 from dataclasses import dataclass
@@ -85,6 +93,13 @@ class UnknownBasisError(LookupError):
     def __init__(self, basis_id: str):
         super().__init__(basis_id)
         self.basis_id = basis_id
+
+
+class UnknownBasisVersionError(LookupError):
+    def __init__(self, basis_id: str, fingerprint: str):
+        super().__init__(basis_id, fingerprint)
+        self.basis_id = basis_id
+        self.fingerprint = fingerprint
 
 
 class CatalogueNotReadyError(RuntimeError):
@@ -176,9 +191,11 @@ def _read_rates_csv(folder: Path, file_name: str, field: str, first_age: Any, wh
     return rows
 
 
-def read_basis_file(path: Path) -> StoredBasisFile:
-    """Read and validate one stored-basis file (and its rates files); no compilation."""
-    where = path.name
+def read_basis_file(path: Path, expected_id: str | None = None, where: str | None = None) -> StoredBasisFile:
+    """Read and validate one stored-basis file (and its rates files); no compilation.
+
+    Its id must be the file's name, or ``expected_id`` for an earlier version."""
+    where = where or path.name
     try:
         raw = _FILE_DECODER.decode(path.read_bytes())
     except msgspec.DecodeError as exc:
@@ -216,7 +233,14 @@ def read_basis_file(path: Path) -> StoredBasisFile:
     except msgspec.ValidationError as exc:
         field, message = field_error(str(exc))
         raise BasisFileError(where, field, message) from None
-    if stored.id != path.stem:
+    if expected_id is not None:
+        if stored.id != expected_id:
+            raise BasisFileError(
+                where, "$.id",
+                f"an earlier version of {expected_id} must have the id {expected_id!r} (got "
+                f"{stored.id!r})",
+            )
+    elif stored.id != path.stem:
         raise BasisFileError(
             where, "$.id", f"the id {stored.id!r} must match the file name ({path.stem}.json)"
         )
@@ -284,6 +308,42 @@ def load_folder(folder: Path) -> list[StoredBasis]:
     return [bases[k] for k in sorted(bases)]
 
 
+VERSIONS_SUFFIX = ".versions"
+
+
+def load_versions(folder: Path, current: Iterable[StoredBasis]) -> dict[str, list[StoredBasis]]:
+    """The earlier versions kept in ``<id>.versions/`` folders, validated and compiled once
+    (then without their model), by basis id, newest version string first; raises
+    ``BasisFileError``."""
+    by_id = {b.id: b for b in current}
+
+    def nested(reference: BasisDefinition | str) -> LifetimeModel:
+        if isinstance(reference, str):
+            if reference not in by_id:
+                raise DomainError("", f"names no stored basis: {reference!r}")
+            return by_id[reference].model
+        return build_model(reference, nested)
+
+    found: dict[str, list[StoredBasis]] = {}
+    for versions in sorted(folder.glob("*" + VERSIONS_SUFFIX)):
+        if not versions.is_dir():
+            continue
+        basis_id = versions.name[: -len(VERSIONS_SUFFIX)]
+        if basis_id not in by_id:
+            raise BasisFileError(
+                versions.name, "", f"holds versions of {basis_id}, but there is no {basis_id}.json"
+            )
+        for path in sorted(versions.glob("*.json")):
+            where = f"{versions.name}/{path.name}"
+            stored = read_basis_file(path, basis_id, where)
+            earlier = compile_stored(stored, where, nested, lambda i: by_id[i].definition)
+            # only the definition is kept: the model was built to validate the file
+            found.setdefault(basis_id, []).append(dataclasses.replace(earlier, model=None))
+        found.get(basis_id, []).sort(key=lambda b: b.version, reverse=True)
+    return found
+
+
+
 # ---- the catalogue ---------------------------------------------------------------------------
 
 
@@ -295,6 +355,7 @@ class Catalogue:
         self.cache: ModelCache[LifetimeModel] = ModelCache(cache_size)
         self._by_id: dict[str, StoredBasis] = {}
         self._by_fingerprint: dict[str, StoredBasis] = {}
+        self._earlier: dict[str, list[StoredBasis]] = {}
         self._ready = threading.Event()
         self._load_lock = threading.Lock()
 
@@ -307,7 +368,9 @@ class Catalogue:
         with self._load_lock:
             if self.ready:
                 return
-            self._install(load_folder(self.folder))
+            current = load_folder(self.folder)
+            self._earlier = load_versions(self.folder, current)
+            self._install(current)
 
     def _install(self, bases: Iterable[StoredBasis]) -> None:
         by_id = {b.id: b for b in bases}
@@ -327,6 +390,18 @@ class Catalogue:
         if basis is None:
             raise UnknownBasisError(basis_id)
         return basis
+
+    def versions(self, basis_id: str) -> list[StoredBasis]:
+        """Every version of a stored basis: the current one first, then the earlier ones kept
+        beside it (newest first)."""
+        return [self.get(basis_id), *self._earlier.get(basis_id, [])]
+
+    def version(self, basis_id: str, fingerprint: str) -> StoredBasis:
+        """The version of a stored basis with this fingerprint (the newest, if several)."""
+        for basis in self.versions(basis_id):
+            if basis.fingerprint == fingerprint:
+                return basis
+        raise UnknownBasisVersionError(basis_id, fingerprint)
 
     def _check_ready(self) -> None:
         if not self.ready:

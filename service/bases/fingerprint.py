@@ -69,9 +69,13 @@ def canonical_json(definition: BasisDefinition, expand: Expand | None = None) ->
     definitions that name stored bases.
     """
     if expand is not None and any(getattr(definition, f, None) is not None for f in _NESTED_FIELDS):
-        encoded = _ENCODER.encode(_expanded(msgspec.to_builtins(definition), expand))
-    else:
-        encoded = _ENCODER.encode(definition)
+        return canonical_bytes(_expanded(msgspec.to_builtins(definition), expand))
+    return canonical_bytes(definition)
+
+
+def canonical_bytes(value: Any) -> bytes:
+    """The canonical JSON of any Struct or builtins value (the rules of the module docstring)."""
+    encoded = _ENCODER.encode(value)
     if b"-0.0" in encoded:
         encoded = _NEGATIVE_ZERO.sub(b"0.0", encoded)
     return encoded

@@ -160,6 +160,22 @@ def invented_files() -> dict[str, str]:
             "definition": {"type": "makeham", "A": 0.0002, "B": 0.000012, "c": 1.108},
         }
     )
+    # an earlier version kept beside it (GET /v1/bases/{id}/versions): quotes made on it can
+    # still be reproduced after the basis changed
+    files[f"{basis_id}.versions/2023.2.json"] = _basis_json(
+        {
+            "id": basis_id,
+            "title": f"{INSURER} annuitants, Makeham law, 2023 review (INVENTED)",
+            "description": (
+                f"{INVENTED_NOTE} The version in force before the 2024 review: a Makeham law "
+                "μ_x = A + B c^x with made-up parameters, kept so that quotes made on it can "
+                "be reproduced."
+            ),
+            "source": SOURCE,
+            "version": "2023.2",
+            "definition": {"type": "makeham", "A": 0.0002, "B": 0.0000135, "c": 1.108},
+        }
+    )
     return files
 
 
@@ -168,6 +184,7 @@ def write(folder: Path) -> list[Path]:
     written = []
     for name, text in invented_files().items():
         path = folder / name
+        path.parent.mkdir(parents=True, exist_ok=True)
         path.write_text(text, encoding="utf-8")
         written.append(path)
     return written

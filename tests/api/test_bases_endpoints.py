@@ -88,7 +88,8 @@ def test_fingerprint_ignores_spelling_of_numbers_and_key_order(client):
 def test_etag_and_if_none_match(client):
     r = client.get("/v1/bases/standard-ultimate")
     etag = r.headers["etag"]
-    assert etag == f'"{r.json()["fingerprint"]}"'
+    # the ETag covers the whole body (RFC 9110 §8.8.3: it names this representation)
+    assert etag == '"sha256:' + hashlib.sha256(r.content).hexdigest() + '"'
     again = client.get("/v1/bases/standard-ultimate", headers={"If-None-Match": etag})
     assert again.status_code == 304
     assert again.content == b""

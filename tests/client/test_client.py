@@ -14,6 +14,7 @@ import msgspec
 import pytest
 
 from service.api import schemas as s
+from service.api.value_schemas import PresentValuesRequest
 from service.bases import definitions as d
 from service.client import (
     AsyncLifetimeClient,
@@ -80,7 +81,7 @@ def test_the_client_decodes_the_same_numbers_the_service_sends(service):
     raw = httpx.post(f"{service.url}/v1/survival", json=body, timeout=10).json()
     with LifetimeClient(service.url) as client:
         typed = client.survival(**body)
-        from_struct = client.survival(msgspec.convert(body, s.SurvivalRequest))
+        from_struct = client.send(msgspec.convert(body, s.SurvivalRequest))
     assert msgspec.to_builtins(typed) == raw
     assert from_struct == typed
 
@@ -122,7 +123,7 @@ def test_present_values_decode_into_the_client_structs(service):
         ],
     }
     with LifetimeClient(service.url) as client:
-        answer = client.present_values(request)
+        answer = client.send(msgspec.convert(request, PresentValuesRequest))
         same = client.present_values(**request)
     assert isinstance(answer, PresentValuesResponse) and answer == same
     annuity, insurance = answer.results[0].benefits
@@ -186,6 +187,56 @@ def test_a_request_off_the_schema_is_refused_before_sending(service):
     assert caught.value.status is None and not caught.value.sent
     assert caught.value.errors[0][0] == "$.lives[0].age"
     assert not unknown.value.sent and "horizon" in unknown.value.detail
+
+
+@pytest.mark.parametrize(
+    "method,body",
+    [
+        ("expectation", {"basis": "standard-ultimate", "lives": [{"age": 60}], "horizon": 5}),
+        ("survival", {"basis": "standard-ultimate", "lives": [{"agee": 60}], "t": [1]}),
+        ("survival", {"basis": {"type": "gompertz", "B": 0.001, "c": 1.1, "D": 2},
+                      "lives": [{"age": 60}], "t": [1]}),
+        ("moments", {"basis": "standard-ultimate", "lives": [{"age": 60}], "orders": [9]}),
+        ("quantiles", {"basis": "standard-ultimate", "lives": [{"age": "60"}],
+                       "probabilities": [0.5]}),
+        ("present_values", {"basis": "standard-ultimate", "lives": [{"age": 60}],
+                            "interest": {"rate": 0.03}, "benefits": [{"type": "tontine"}]}),
+    ],
+)
+def test_refused_before_sending_in_the_words_the_service_answers(service, method, body):
+    path = "/v1/" + method.replace("_", "-")
+    answered = httpx.post(f"{service.url}{path}", json=body, timeout=10)
+    assert answered.status_code == 400
+    problem = answered.json()
+    with LifetimeClient(service.url, retries=0) as client:
+        with pytest.raises(LifetimeServiceError) as caught:
+            getattr(client, method)(**body)
+    error = caught.value
+    assert not error.sent
+    assert (error.title, error.detail, error.type) == (
+        problem["title"], problem["detail"], problem["type"]
+    )
+    assert error.errors == [(e["field"], e["message"]) for e in problem["errors"]]
+
+
+def test_every_method_has_explicit_typed_parameters_and_the_constructor_shows_its_limits():
+    import inspect
+    import typing
+
+    for cls in (LifetimeClient, AsyncLifetimeClient):
+        init = inspect.signature(cls.__init__).parameters
+        for name in ("timeout", "connect_timeout", "retries", "backoff", "max_backoff", "token"):
+            assert name in init and init[name].kind is inspect.Parameter.KEYWORD_ONLY, name
+        for name in ("survival", "deferred_death", "expectation", "moments", "quantiles",
+                     "life_table", "life_table_csv", "present_values"):
+            method = getattr(cls, name)
+            parameters = inspect.signature(method).parameters
+            hints = typing.get_type_hints(method)
+            named = [p for p in parameters.values()
+                     if p.name != "self" and p.kind is not inspect.Parameter.VAR_KEYWORD]
+            assert named and all(p.name in hints for p in named), (cls, name)
+            # a catch-all for unknown names is typed Never: a type checker refuses any
+            assert hints["unknown"] is typing.Never
 
 
 def test_a_present_values_request_off_the_schema_is_refused_before_sending(service):
@@ -332,3 +383,13 @@ def test_the_readme_client_example_runs(service, capsys):
     assert printed[0].startswith("sha256:")
     assert printed[1].startswith("65.0 ") and printed[2].startswith("70.0 ")
     assert printed[-1].startswith("422 [('$.basis.A', 'A must be greater than")
+
+
+def test_an_earlier_version_of_a_stored_basis_by_fingerprint(service):
+    with LifetimeClient(service.url) as client:
+        current = client.basis("thistlemoor-2024-annuitants")
+        same = client.basis_version("thistlemoor-2024-annuitants", current.fingerprint)
+        with pytest.raises(LifetimeServiceError) as caught:
+            client.basis_version("thistlemoor-2024-annuitants", "sha256:" + "0" * 64)
+    assert same == current
+    assert caught.value.status == 404 and caught.value.type == "/problems/unknown-basis-version"

@@ -13,6 +13,8 @@ from pathlib import Path
 
 import pytest
 
+from demo import quote_desk
+from service.bases import definitions as d
 from service.launch import service_environment
 
 pytestmark = pytest.mark.slow
@@ -32,7 +34,7 @@ def test_every_applicant_and_the_insurer_are_marked_invented():
     assert text.startswith("# INVENTED DATA. Thistlemoor Mutual is a fictional insurer")
     rows = list(csv.DictReader(line for line in text.splitlines() if not line.startswith("#")))
     assert len(rows) >= 24 and all(row["invented"] == "yes" for row in rows)
-    assert {row["product"] for row in rows} == {"term", "annuity", "joint-annuity"}
+    assert {row["product"] for row in rows} == {"term", "annuity", "last-survivor-annuity"}
     assert "INVENTED" in (DEMO / "README.md").read_text()
 
 
@@ -59,7 +61,7 @@ def test_the_quick_demo_runs_end_to_end(tmp_path):
     ]
 
     quotes = summary["quotes"]
-    assert {q["product"] for q in quotes} == {"term", "annuity", "joint-annuity"}
+    assert {q["product"] for q in quotes} == {"term", "annuity", "last-survivor-annuity"}
     for q in quotes:
         assert q["id"] in report
         assert q["fingerprint"].startswith("sha256:") and len(q["fingerprint"]) == 71
@@ -75,8 +77,15 @@ def test_the_quick_demo_runs_end_to_end(tmp_path):
         else:
             annuity = q["values"]["annuity" if q["product"] == "annuity" else "while either lives"]
             assert 1 < annuity["per_unit"] < 40 and annuity["standard_deviation"] > 0
-        if q["product"] == "joint-annuity":
+        if q["product"] == "last-survivor-annuity":
             assert q["values"]["while both live"]["per_unit"] < q["values"]["while either lives"]["per_unit"]
+    # an annuity paid while either of a couple lives is a last-survivor annuity, and each
+    # value column says which annuity it values (common practice in pricing reports)
+    assert "## Last-survivor annuities (couples)" in report and "Joint-life annuities" not in report
+    for heading in (quote_desk.ANNUITY_VALUE_COLUMN, quote_desk.LAST_SURVIVOR_COLUMN,
+                    quote_desk.JOINT_LIFE_COLUMN):
+        assert f"| {heading} |" in report
+    assert "5 years certain then for life" in quote_desk.ANNUITY_VALUE_COLUMN
     # stored bases answer with their ids, rated ones inline with their own fingerprints
     by_basis = {q["basis"]: q for q in quotes}
     assert by_basis["thistlemoor-2024-female"]["basis_id"] == "thistlemoor-2024-female"
@@ -103,7 +112,8 @@ class _OtherShape(BaseHTTPRequestHandler):
     def do_POST(self):  # noqa: N802
         self.rfile.read(int(self.headers.get("Content-Length", 0)))
         self._answer({"basis": {"id": None, "fingerprint": "sha256:" + "0" * 64},
-                      "service_version": "0", "results": []})
+                      "service_version": "0", "results": [],
+                      "calculation_fingerprint": "sha256:" + "0" * 64})
 
     def log_message(self, *args):
         pass
@@ -127,3 +137,20 @@ def test_the_demo_fails_loudly_when_answers_change_shape(tmp_path):
     assert "FAILED: AnswerShapeError" in result.stderr
     assert "0 results for" in result.stderr
     assert not (tmp_path / "report.md").exists()
+
+
+def test_chart_titles_never_break_inside_brackets():
+    couple = d.LastSurvivor(members=[
+        d.Adjusted(base="thistlemoor-2024-annuitants", age_shift=-3, force_multiplier=1.5),
+        "thistlemoor-2024-annuitants",
+    ])
+    lines = quote_desk.title_lines("basis: ", couple)
+    assert lines[0] == "basis: last survivor of 2 lives:"
+    for line in lines + quote_desk.wrap_outside_brackets("a " * 40 + "(b c d e f g h)", 20):
+        assert line.count("(") == line.count(")") and line.count("[") == line.count("]"), line
+    assert max(len(x) for x in quote_desk.wrap_outside_brackets("word " * 60, 30)) <= 30
+
+
+def test_an_axis_ends_at_the_last_visible_value():
+    assert quote_desk.last_visible([0, 1, 2, 3], [1.0, 0.5, 1e-5, 0.0], 1e-3) == 1
+    assert quote_desk.last_visible([0, 1], [float("nan"), 0.0], 1e-3) == 1  # nothing visible

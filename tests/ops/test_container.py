@@ -39,6 +39,15 @@ def test_dockerfile_shape():
     assert cmd[:3] == ["python", "-m", "service"] and "0.0.0.0" in cmd
 
 
+def test_the_image_records_its_commit_and_runs_as_the_group_of_the_manifest():
+    run = next(r for r in _instruction("RUN") if "--record" in r)
+    assert 'python -m service.version --record --commit "$SOURCE_COMMIT"' in run
+    assert run.index("--record") < run.index("pip install")  # recorded, then installed
+    assert "ARG SOURCE_COMMIT" in DOCKERFILE
+    assert "--gid 10001" in run and "--uid 10001" in run
+    assert _instruction("USER")[-1] == "10001:10001"
+
+
 def _container_command(port: int) -> tuple[list[str], dict[str, str]]:
     """The Dockerfile's CMD and ENV, bound to loopback and a free port for the test."""
     cmd = json.loads(_instruction("CMD")[-1])
@@ -84,6 +93,10 @@ def test_start_command_gets_ready_without_writing(tmp_path):
     app = tmp_path / "app"
     app.mkdir()
     subprocess.run(["cp", "-r", str(ROOT / "service"), str(app)], check=True)
+    # the Dockerfile's build step, as `docker build --build-arg SOURCE_COMMIT=...` runs it
+    commit = "0123456789abcdef0123456789abcdef01234567"
+    subprocess.run([sys.executable, "-m", "service.version", "--record", "--commit", commit],
+                   cwd=app, check=True, capture_output=True, env={**env, "PYTHONPATH": str(app)})
     for path in [app, *app.rglob("*")]:
         path.chmod(0o555 if path.is_dir() else 0o444)
     env.update(PYTHONPATH=str(app), HOME=str(app))
@@ -100,6 +113,7 @@ def test_start_command_gets_ready_without_writing(tmp_path):
         )
         assert r.status_code == 200
         assert r.json()["results"][0]["complete"] > 0
+        assert r.json()["service_version"].endswith("+g0123456789ab")  # no git in an image
     finally:
         process.terminate()
         try:

@@ -29,7 +29,9 @@ KUBERNETES_VERSIONS = ("1.27", kubernetes_validate.latest_version())
 def _documents() -> dict[str, dict]:
     documents = [d for d in yaml.safe_load_all(MANIFEST.read_text()) if d]
     kinds = [d["kind"] for d in documents]
-    assert sorted(kinds) == ["Deployment", "HorizontalPodAutoscaler", "Service"]
+    assert sorted(kinds) == [
+        "Deployment", "HorizontalPodAutoscaler", "PodDisruptionBudget", "Service"
+    ]
     return {d["kind"]: d for d in documents}
 
 
@@ -70,6 +72,12 @@ def test_the_pieces_fit_together():
     target = autoscaler["spec"]["scaleTargetRef"]
     assert (target["kind"], target["name"]) == ("Deployment", deployment["metadata"]["name"])
     assert 1 < autoscaler["spec"]["minReplicas"] < autoscaler["spec"]["maxReplicas"]
+    # the autoscaler alone sets the count: a fixed replicas would fight it on every apply
+    assert "replicas" not in deployment["spec"]
+    budget = documents["PodDisruptionBudget"]["spec"]
+    assert budget["selector"]["matchLabels"].items() <= labels.items()
+    # a drain never takes every replica: fewer may be unavailable than the autoscaler keeps
+    assert budget["maxUnavailable"] < autoscaler["spec"]["minReplicas"]
     # a CPU utilisation target is measured against the containers' CPU requests
     assert any(m["resource"]["name"] == "cpu" for m in autoscaler["spec"]["metrics"])
     assert container["resources"]["requests"]["cpu"]
@@ -87,9 +95,13 @@ def test_the_pods_are_locked_down_and_match_the_image():
     assert container["securityContext"]["capabilities"]["drop"] == ["ALL"]
 
     dockerfile = (ROOT / "Dockerfile").read_text()
-    user = re.search(r"^USER (\d+)$", dockerfile, re.MULTILINE)
+    user = re.search(r"^USER (\d+):(\d+)$", dockerfile, re.MULTILINE)
     exposed = re.search(r"^EXPOSE (\d+)$", dockerfile, re.MULTILINE)
     assert user and pod["securityContext"]["runAsUser"] == int(user.group(1))
+    # the image's group is the pod's: files the image or a volume gives that group are usable
+    assert pod["securityContext"]["runAsGroup"] == int(user.group(2))
+    assert pod["securityContext"]["fsGroup"] == int(user.group(2))
+    assert re.search(rf"groupadd [^\n]*--gid {user.group(2)}\b", dockerfile)
     assert exposed and [p["containerPort"] for p in container["ports"]] == [int(exposed.group(1))]
 
 
