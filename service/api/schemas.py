@@ -18,7 +18,7 @@ import msgspec
 from msgspec import Meta
 
 from service.bases.definitions import BASIS_DESCRIPTION, BASIS_KINDS, Basis, BasisDefinition
-from service.core.lifetime import SELECTION_AGE_RULES
+from service.selection import SELECTION_AGE_RULES
 
 __all__ = ["Basis", "BasisDefinition"]
 

@@ -30,6 +30,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import comb
 
+from service.selection import SELECTION_AGE_RULES
+
 from . import expansion
 from .errors import ComputationLimitError, DomainError, fmt
 
@@ -917,15 +919,6 @@ class YearGridModel(LifetimeModel):
         return 0.5 * (lo + hi)
 
 
-#: how a select table places a life whose age at selection (age − duration) is not whole
-SELECTION_AGE_RULES = {
-    "last-birthday": "selected at the whole age at or below age − duration (the age last "
-    "birthday at selection); the life keeps its exact age, and its duration since selection "
-    "becomes age − that whole age, longer by less than a year",
-    "nearest-birthday": "selected at the whole age nearest to age − duration (halves round up); "
-    "the life keeps its exact duration since selection and is valued at that whole age plus "
-    "the duration, so its age moves by at most half a year",
-}
 #: a selection age within this of a whole age is that whole age (rounding in age − duration)
 WHOLE_TOLERANCE = 1e-9
 
