@@ -59,12 +59,8 @@ def check_durations(b, durations, horizon: np.ndarray, field: str = "policy_valu
         bad = np.flatnonzero(~(value < horizon))
         if bad.size:
             i = int(bad[0])
-            raise DomainError(
-                f"{field}[{k}]",
-                f"duration {fmt(value)} reaches past the limiting age of the basis for "
-                f"lives[{i}], whose survival ends (or becomes negligible) after "
-                f"{fmt(round(float(horizon[i]), 6))} years",
-            )
+            raise DomainError(f"{field}[{k}]",
+                              pv.past_the_limit(f"duration {fmt(value)}", i, horizon))
     return t
 
 

@@ -994,12 +994,12 @@ def _check_reach(horizon: np.ndarray, b: Benefit) -> None:
         if bad.size:
             i = int(bad[0])
             what = "deferral" if name == "deferral" else "deferral plus guarantee"
-            raise DomainError(
-                name,
-                f"the {what} ({fmt(reach)} years) reaches past the limiting age of the basis "
-                f"for lives[{i}], whose survival ends (or becomes negligible) after "
-                f"{fmt(round(float(horizon[i]), 6))} years",
-            )
+            raise DomainError(name, past_the_limit(f"the {what} ({fmt(reach)} years)", i, horizon))
+
+
+def past_the_limit(what: str, i: int, horizon: np.ndarray) -> str:
+    return (f"{what} reaches past the limiting age of the basis for lives[{i}], whose survival "
+            f"ends (or becomes negligible) after {fmt(round(float(horizon[i]), 6))} years")
 
 
 class Valuation:
