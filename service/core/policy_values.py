@@ -34,6 +34,8 @@ from .errors import DomainError, fmt
 #: a status whose survival to a duration is below this has (for these values) surely left
 MIN_SURVIVAL = 1e-280
 MAX_DURATIONS = 1_000
+#: a payment time (u + k/m) within this of a duration (j/m) is due at that duration
+EDGE_SLACK = 1e-9
 
 
 def benefit_end(b) -> float:
@@ -93,16 +95,9 @@ def future_value(valuation: pv.Valuation, b, t: np.ndarray) -> np.ndarray:
         raise DomainError(f"policy_value_durations[{k}]",
                           f"the status has surely ended by duration {fmt(t[k])}")
     total = np.zeros((age.shape[0], t.size))
-    for part in _parts(b):
+    for part in pv.parts(b):
         total += _part_value(valuation, part, t, h_t)
     return total / (s_t * discount.v(t)[None, :])
-
-
-def _parts(b):
-    if isinstance(b, pv.Endowment):
-        return [pv.LifeInsurance(timing=b.timing, frequency=b.frequency, term=b.term),
-                pv.PureEndowment(b.term)]
-    return [b]
 
 
 def _part_value(valuation: pv.Valuation, b, t, h_t) -> np.ndarray:
@@ -151,7 +146,7 @@ def _stream(model, age, duration, times, paid, tau, t, s_t) -> np.ndarray:
     s_tau = pv._survival_from(model.cumulative_hazard(age, duration, tau))
     tail = _suffix(paid * s_tau)
     cum = np.concatenate([np.zeros((n_lives, 1)), np.cumsum(paid, axis=1)], axis=1)
-    a = np.searchsorted(times, t, side="left")
+    a = np.searchsorted(times, t - EDGE_SLACK, side="left")  # a payment due at t is to come
     b = np.maximum(a, np.searchsorted(tau, t, side="left"))
     return tail[:, b] + s_t * (cum[:, b] - cum[:, a])
 
@@ -165,7 +160,7 @@ def _periods(model, age, duration, edges, paid, t, h_t) -> np.ndarray:
         s0 = pv._survival_from(h[:, :-1])
         dq = np.nan_to_num(-np.expm1(-(h[:, 1:] - h[:, :-1])), nan=1.0)
     tail = _suffix(paid * np.where(s0 > 0.0, s0 * dq, 0.0))
-    a = np.searchsorted(edges[:-1], t, side="left")  # the first period that starts at or after t
+    a = np.searchsorted(edges[:-1], t - EDGE_SLACK, side="left")  # the first period from t
     out = tail[:, a]
     inside = (a >= 1) & (t < edges[np.minimum(a, edges.size - 1)])
     p = np.clip(a - 1, 0, paid.size - 1)

@@ -215,6 +215,15 @@ class Endowment:
 Benefit = LifeAnnuity | LifeInsurance | PureEndowment | Endowment
 
 
+def parts(b) -> list:
+    """The benefit as the parts it adds up from: an endowment is a term insurance plus a pure
+    endowment over the same term; every other benefit is one part."""
+    if isinstance(b, Endowment):
+        return [LifeInsurance(timing=b.timing, frequency=b.frequency, term=b.term),
+                PureEndowment(b.term)]
+    return [b]
+
+
 @dataclass(frozen=True)
 class PremiumPlan:
     """Level premiums of 1/m a year each 1/m year in advance while the status survives, for
