@@ -13,6 +13,7 @@ from service.settings import Settings, from_environment
 
 from .bases import bases_handlers
 from .calculations import REQUEST_TYPES, calculation_handlers
+from .cash_flows import cash_flow_handlers
 from .observability import Metrics, observe
 from .openapi import add_request_bodies, openapi_config
 from .operations import operations_handlers
@@ -56,6 +57,7 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
         route_handlers=[
             *calculation_handlers(settings, catalogue),
             *present_value_handlers(settings, catalogue),
+            *cash_flow_handlers(settings, catalogue),
             *bases_handlers(catalogue),
             *operations_handlers(catalogue, metrics),
         ],

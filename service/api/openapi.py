@@ -33,7 +33,11 @@ from service.version import __version__
 CAUTION = (
     "The distribution of future lifetime on a mortality basis: survival and death "
     "probabilities, the force of mortality, deferred death probabilities, expectations of "
-    "life, moments, quantiles and derived life tables, for stored bases or bases sent inline."
+    "life, moments, quantiles and derived life tables, for stored bases or bases sent inline; "
+    "and, at interest, present values of life annuities, insurances and endowments (level, "
+    "increasing, decreasing or escalating; reversionary and contingent benefits on two lives) "
+    "with their second moments, net premiums paid m times a year, prospective policy values, "
+    "expected cash flows per period and sensitivities to mortality and interest."
     "\n\n"
     "**Caution.** Every result depends on the basis chosen, and a basis is an assumption about "
     "future mortality, not a fact. The results are not actuarial advice. Decisions that rest "

@@ -32,13 +32,23 @@ class CashFlows:
     premium: np.ndarray | None  # (N, P) expected net premium income, when premiums are asked
 
 
+def cash_flow_end(valuation: pv.Valuation, b, plan: pv.PremiumPlan | None = None) -> float:
+    """Where the benefit's (and the premiums') cash flows end for every life."""
+    horizon = float(np.max(valuation.horizon))
+    last = min(benefit_end(b), horizon)
+    if plan is not None:
+        last = max(last, horizon if plan.term is None else min(plan.term, horizon))
+    return last
+
+
 def cash_flows(valuation: pv.Valuation, b, frequency: int = 1,
                premium: np.ndarray | None = None,
-               plan: pv.PremiumPlan | None = None) -> CashFlows:
-    """Expected cash flows of ``b`` (and of ``premium`` a year per life under ``plan``)."""
+               plan: pv.PremiumPlan | None = None, until: float | None = None) -> CashFlows:
+    """Expected cash flows of ``b`` (and of ``premium`` a year per life under ``plan``), in
+    periods up to ``until`` (by default the end of the benefit's and premiums' cash flows)."""
     if hasattr(b, "moments"):
         raise DomainError(
-            "cash_flows",
+            "type",
             "cash flows are offered for benefits on one status (a single life, or a joint-life "
             "or last-survivor status), not for reversionary or contingent benefits",
         )
@@ -46,12 +56,8 @@ def cash_flows(valuation: pv.Valuation, b, frequency: int = 1,
         raise DomainError("cash_flows.frequency",
                           f"frequency must be a whole number from 1 to 365 (got {frequency!r})")
     valuation.moments(b)  # the benefit's checks (and values that converge)
-    horizon = float(np.max(valuation.horizon))
-    last = min(benefit_end(b), horizon)
-    if premium is not None and plan.term is not None:
-        last = max(last, min(plan.term, horizon))
-    elif premium is not None:
-        last = horizon
+    last = cash_flow_end(valuation, b, plan if premium is not None else None)
+    last = last if until is None else until
     n_periods = pv._check_count(max(1, math.ceil(round(last * frequency, 9))), "cash_flows")
     grid = np.arange(n_periods + 1, dtype=float) / frequency
     model, age, duration = valuation.model, valuation.age, valuation.duration

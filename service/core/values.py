@@ -1114,7 +1114,8 @@ def check_premium_plan(plan: PremiumPlan) -> None:
         period = "years" if m == 1 else f"premium periods of 1/{m} year"
         raise DomainError(
             "net_premium.premium_term",
-            f"premium_term must be a whole number of {period}, more than 0 (got {fmt(n)})",
+            f"premium_term (as given, or by default the benefit's own term or deferral) must "
+            f"be a whole number of {period}, more than 0 (got {fmt(n)}): give premium_term",
         )
 
 
