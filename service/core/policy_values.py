@@ -54,29 +54,32 @@ def check_durations(b, durations, horizon: np.ndarray, field: str = "policy_valu
     if t.ndim != 1 or t.size == 0 or t.size > MAX_DURATIONS:
         raise DomainError(field, f"give 1 to {MAX_DURATIONS} durations (got {t.size})")
     end = benefit_end(b)
-    for k, value in enumerate(t.tolist()):
-        if not (math.isfinite(value) and 0.0 <= value <= end):
-            allowed = "at least 0" if math.isinf(end) else f"from 0 to the end of cover, {fmt(end)}"
-            raise DomainError(f"{field}[{k}]", f"each duration must be {allowed} (got {fmt(value)})")
-        bad = np.flatnonzero(~(value < horizon))
-        if bad.size:
-            i = int(bad[0])
-            raise DomainError(f"{field}[{k}]",
-                              pv.past_the_limit(f"duration {fmt(value)}", i, horizon))
+    outside = np.flatnonzero(~(np.isfinite(t) & (t >= 0.0) & (t <= end)))
+    if outside.size:
+        k = int(outside[0])
+        allowed = "at least 0" if math.isinf(end) else f"from 0 to the end of cover, {fmt(end)}"
+        raise DomainError(f"{field}[{k}]", f"each duration must be {allowed} (got {fmt(t[k])})")
+    past = ~(t[None, :] < np.asarray(horizon, float)[:, None])  # (lives, durations)
+    if past.any():
+        i, k = (int(x) for x in np.argwhere(past.T)[0][::-1])
+        raise DomainError(f"{field}[{k}]", pv.past_the_limit(f"duration {fmt(t[k])}", i, horizon))
     return t
 
 
 def policy_values(valuation: pv.Valuation, b, durations, premium: np.ndarray | None = None,
-                  plan: pv.PremiumPlan | None = None) -> np.ndarray:
+                  plan: pv.PremiumPlan | None = None, valued: bool = False) -> np.ndarray:
     """ₜV for each life (rows) and duration (columns): benefit less ``premium`` (annual,
-    one per life) under ``plan``; no premiums when ``premium`` is None."""
+    one per life) under ``plan``; no premiums when ``premium`` is None. ``valued``: the
+    benefit (and so its checks and the convergence of its values) was valued on
+    ``valuation`` already, as a quote does, so it is not valued again."""
     if hasattr(b, "moments"):
         raise DomainError(
             "policy_value_durations",
             "policy values are offered for benefits on one status (a single life, or a joint-life "
             "or last-survivor status), not for reversionary or contingent benefits",
         )
-    valuation.moments(b)  # the benefit's checks (and a value that converges)
+    if not valued:
+        valuation.moments(b)  # the benefit's checks (and a value that converges)
     t = check_durations(b, durations, valuation.horizon)
     out = future_value(valuation, b, t)
     if premium is not None:

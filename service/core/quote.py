@@ -58,7 +58,8 @@ def quote(model, age, duration, discount: pv.Discount, items: list[QuoteItem],
                     )
                 plan = item.premiums if item.premiums is not False else None
                 premium = values.net_premium if plan is not None else None
-                reserve = policy_values(valuation, item.benefit, item.durations, premium, plan)
+                reserve = policy_values(valuation, item.benefit, item.durations, premium, plan,
+                                        valued=True)
         except DomainError as exc:
             raise _placed(exc, i) from None
         found.append(values)
