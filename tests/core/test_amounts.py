@@ -96,10 +96,10 @@ def test_decreasing_and_increasing_cover_sum_to_level_cover(n, u):
         assert inc + n * dec == pytest.approx((n + 1) * level, rel=1e-12)
 
 
+@mpmath.workdps(30)  # local precision: the module-wide one of other tests stays
 def test_escalating_and_decreasing_continuous_cover_against_mpmath():
     # constant force μ and force of interest δ: ∫ c(t) e^{−(μ+δ)t} μ dt with c constant within
     # each year, summed year by year in closed form with mpmath at 30 digits
-    mpmath.mp.dps = 30
     mu, i, e, n = mpmath.mpf("0.02"), mpmath.mpf("0.04"), mpmath.mpf("0.03"), 12
     k = mu + mpmath.log(1 + i)
     model = laws.ConstantForce(float(mu))
@@ -117,12 +117,12 @@ def test_escalating_and_decreasing_continuous_cover_against_mpmath():
     assert got_d == pytest.approx(float(decreasing), rel=1e-12)
 
 
+@mpmath.workdps(20)  # local precision: the module-wide one of other tests stays
 def test_a_continuous_escalating_annuity_and_its_second_moment_against_mpmath():
     # constant force μ and force of interest δ, rate c = (1 + e)^j in year j. Whole life:
     # E[Y] = Σ_j (1+e)^j e^{−kj} (1 − e^{−k})/k, k = μ + δ, a geometric series in closed form.
     # Over a term of 5 years, Y = C(min(T, 5)) with C(t) = ∫₀ᵗ c v ds, so
     # E[Y²] = ∫₀⁵ C(t)² μ e^{−μt} dt + C(5)² e^{−5μ} (mpmath quadrature, year by year)
-    mpmath.mp.dps = 20
     mu, delta, e = mpmath.mpf("0.03"), mpmath.log(mpmath.mpf("1.05")), mpmath.mpf("0.02")
     k = mu + delta
     first = (1 - mpmath.exp(-k)) / k / (1 - (1 + e) * mpmath.exp(-k))

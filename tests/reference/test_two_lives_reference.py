@@ -85,8 +85,8 @@ def _gompertz_survival(b, c, x, t):
     return mpmath.exp(-b * c**x * (c**t - 1) / mpmath.log(c))
 
 
+@mpmath.workdps(30)  # local precision: the module-wide one of other tests stays
 def test_against_mpmath_on_two_gompertz_lives():
-    mpmath.mp.dps = 30
     b1, c1, b2, c2 = mpmath.mpf("5e-5"), mpmath.mpf("1.1"), mpmath.mpf("3e-5"), mpmath.mpf("1.105")
     x, y, v = mpmath.mpf(62), mpmath.mpf(58), 1 / mpmath.mpf("1.04")
     pair = _pair(laws.Gompertz(B=5e-5, c=1.1), laws.Gompertz(B=3e-5, c=1.105), [[62.0, 58.0]])
