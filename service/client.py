@@ -61,6 +61,8 @@ from service.api.schemas import (
 )
 from service.api.value_schemas import (
     BenefitResult,
+    CashFlowsRequest,
+    CashFlowsResponse,
     PresentValuesRequest,
     PresentValuesResponse,
     PresentValuesResult,
@@ -69,6 +71,7 @@ from service.api.value_schemas import (
 __all__ = [
     "AsyncLifetimeClient",
     "BenefitResult",
+    "CashFlowsResponse",
     "LifetimeClient",
     "LifetimeServiceError",
     "PresentValuesResponse",
@@ -296,6 +299,14 @@ class _Base:
         return _post("/v1/present-values", PresentValuesRequest, PresentValuesResponse, request, fields)
 
     @staticmethod
+    def _cash_flows(request: Any, fields: dict, csv: bool) -> _Call:
+        call = _post("/v1/cash-flows", CashFlowsRequest, str if csv else CashFlowsResponse,
+                     request, fields)
+        if csv:
+            call = _Call(call.method, call.path, str, call.body, "text/csv")
+        return call
+
+    @staticmethod
     def _stored_basis(basis_id: str) -> _Call:
         return _Call("GET", "/v1/bases/" + quote(basis_id, safe=""), StoredBasisDetail)
 
@@ -386,6 +397,15 @@ class LifetimeClient(_Base):
         deviations, and net premiums. The request (PresentValuesRequest or keyword arguments)
         is checked before sending, like every calculation."""
         return self._send(self._present_values(request, fields))
+
+    def cash_flows(self, request: Any = None, **fields: Any) -> CashFlowsResponse:
+        """POST /v1/cash-flows: expected benefit outgo, premium income and probability in
+        force per period, per life and summed."""
+        return self._send(self._cash_flows(request, fields, csv=False))
+
+    def cash_flows_csv(self, request: Any = None, **fields: Any) -> str:
+        """POST /v1/cash-flows with ``Accept: text/csv``: the cash flows as CSV text."""
+        return self._send(self._cash_flows(request, fields, csv=True))
 
     # reading bases, operations
 
@@ -498,6 +518,12 @@ class AsyncLifetimeClient(_Base):
 
     async def present_values(self, request: Any = None, **fields: Any) -> PresentValuesResponse:
         return await self._send(self._present_values(request, fields))
+
+    async def cash_flows(self, request: Any = None, **fields: Any) -> CashFlowsResponse:
+        return await self._send(self._cash_flows(request, fields, csv=False))
+
+    async def cash_flows_csv(self, request: Any = None, **fields: Any) -> str:
+        return await self._send(self._cash_flows(request, fields, csv=True))
 
     async def bases(self) -> StoredBasesResponse:
         return await self._send(self._BASES)
