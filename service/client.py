@@ -70,6 +70,8 @@ from service.api.schemas import (
 from service.api.value_schemas import (
     BenefitRequest,
     BenefitResult,
+    CashFlowsRequest,
+    CashFlowsResponse,
     Interest,
     PresentValuesRequest,
     PresentValuesResponse,
@@ -80,6 +82,7 @@ from service.bases.validation import field_error
 __all__ = [
     "AsyncLifetimeClient",
     "BenefitResult",
+    "CashFlowsResponse",
     "LifetimeClient",
     "LifetimeServiceError",
     "PresentValuesResponse",
@@ -222,6 +225,7 @@ ENDPOINTS: dict[type, tuple[str, type]] = {
     QuantilesRequest: ("/v1/quantiles", QuantilesResponse),
     LifeTableRequest: ("/v1/life-table", LifeTableResponse),
     PresentValuesRequest: ("/v1/present-values", PresentValuesResponse),
+    CashFlowsRequest: ("/v1/cash-flows", CashFlowsResponse),
 }
 
 
@@ -254,6 +258,11 @@ def _post(request_type: type, fields: Mapping[str, Any], accept: str = "applicat
     path, answer = ENDPOINTS[request_type]
     return _Call("POST", path, str if accept != "application/json" else answer,
                  _checked(request_type, fields), accept)
+
+
+def _cash_flow_fields(basis, lives, interest, benefits, periods_per_year, unknown) -> dict:
+    return {"basis": basis, "lives": lives, "interest": interest, "benefits": benefits,
+            "periods_per_year": periods_per_year, **unknown}
 
 
 def _prepared(request: msgspec.Struct) -> _Call:
@@ -446,6 +455,21 @@ class LifetimeClient(_Base):
         """Send a request Struct built beforehand (a SurvivalRequest, …); its response Struct."""
         return self._send(_prepared(request))
 
+    def cash_flows(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                   interest: InterestArgument, benefits: Sequence[BenefitArgument],
+                   periods_per_year: int = 1, **unknown: Never) -> CashFlowsResponse:
+        """POST /v1/cash-flows: expected benefit outgo, premium income and probability in
+        force per period, per life and summed."""
+        return self._send(_post(CashFlowsRequest, _cash_flow_fields(
+            basis, lives, interest, benefits, periods_per_year, unknown)))
+
+    def cash_flows_csv(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                       interest: InterestArgument, benefits: Sequence[BenefitArgument],
+                       periods_per_year: int = 1, **unknown: Never) -> str:
+        """POST /v1/cash-flows with ``Accept: text/csv``: the cash flows as CSV text."""
+        return self._send(_post(CashFlowsRequest, _cash_flow_fields(
+            basis, lives, interest, benefits, periods_per_year, unknown), accept="text/csv"))
+
     # reading bases, operations
 
     def bases(self) -> StoredBasesResponse:
@@ -572,6 +596,18 @@ class AsyncLifetimeClient(_Base):
 
     async def send(self, request: msgspec.Struct) -> Any:
         return await self._send(_prepared(request))
+
+    async def cash_flows(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                         interest: InterestArgument, benefits: Sequence[BenefitArgument],
+                         periods_per_year: int = 1, **unknown: Never) -> CashFlowsResponse:
+        return await self._send(_post(CashFlowsRequest, _cash_flow_fields(
+            basis, lives, interest, benefits, periods_per_year, unknown)))
+
+    async def cash_flows_csv(self, basis: BasisArgument, lives: Sequence[LifeArgument],
+                             interest: InterestArgument, benefits: Sequence[BenefitArgument],
+                             periods_per_year: int = 1, **unknown: Never) -> str:
+        return await self._send(_post(CashFlowsRequest, _cash_flow_fields(
+            basis, lives, interest, benefits, periods_per_year, unknown), accept="text/csv"))
 
     async def bases(self) -> StoredBasesResponse:
         return await self._send(self._BASES)

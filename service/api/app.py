@@ -13,6 +13,7 @@ from service.settings import Settings, from_environment
 
 from .bases import bases_handlers
 from .calculations import REQUEST_TYPES, calculation_handlers
+from .cash_flows import cash_flow_handlers
 from .conventions import errors_as_problems, head_as_get, negotiate
 from .docs import docs_handlers
 from .observability import Metrics, observe
@@ -58,6 +59,7 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
         route_handlers=[
             *calculation_handlers(settings, catalogue),
             *present_value_handlers(settings, catalogue),
+            *cash_flow_handlers(settings, catalogue),
             *bases_handlers(catalogue),
             *operations_handlers(catalogue, metrics),
             *docs_handlers(),

@@ -20,6 +20,9 @@ from litestar import Request, post
 from service.bases.catalogue import Catalogue
 from service.core import values as pv
 from service.core.errors import DomainError
+from service.core.quote import QuoteItem, quote
+from service.core.sensitivities import Sensitivity
+from service.core.two_lives import ContingentInsurance, ReversionaryAnnuity
 from service.settings import Settings
 
 from .body import decode, read_body
@@ -29,6 +32,8 @@ from .value_schemas import (
     MAX_WORK,
     BenefitRequest,
     BenefitResult,
+    BenefitSensitivities,
+    ContingentInsuranceBenefit,
     Interest,
     LifeAnnuityBenefit,
     LifeInsuranceBenefit,
@@ -36,12 +41,13 @@ from .value_schemas import (
     PresentValuesResponse,
     PresentValuesResult,
     PureEndowmentBenefit,
+    ReversionaryAnnuityBenefit,
 )
 
 _DECODER = msgspec.json.Decoder(PresentValuesRequest)
 
 
-def _discount(interest: Interest) -> pv.Discount:
+def discount_of(interest: Interest) -> pv.Discount:
     given = [name for name in ("rate", "spot_rates") if getattr(interest, name) is not None]
     if len(given) != 1:
         message = (
@@ -57,74 +63,156 @@ def _discount(interest: Interest) -> pv.Discount:
         raise domain_problem(exc) from None
 
 
-def _core_benefit(b: BenefitRequest) -> pv.Benefit:
+def _core_benefit(b: BenefitRequest):
     if isinstance(b, LifeAnnuityBenefit):
         return pv.LifeAnnuity(b.timing, b.frequency, b.term, b.deferral, b.guarantee,
-                              b.increasing, b.approximation)
+                              b.increasing, b.approximation, b.escalation)
     if isinstance(b, LifeInsuranceBenefit):
-        return pv.LifeInsurance(b.timing, b.frequency, b.term, b.deferral, b.increasing)
+        return pv.LifeInsurance(b.timing, b.frequency, b.term, b.deferral, b.increasing,
+                                b.decreasing, b.escalation)
     if isinstance(b, PureEndowmentBenefit):
         return pv.PureEndowment(b.term)
+    if isinstance(b, ReversionaryAnnuityBenefit):
+        return ReversionaryAnnuity(b.timing, b.frequency, b.term, b.proportion, b.life)
+    if isinstance(b, ContingentInsuranceBenefit):
+        return ContingentInsurance(b.timing, b.frequency, b.term, b.order, b.life)
     return pv.Endowment(b.term, b.timing, b.frequency)
 
 
-def _premium_term(b: BenefitRequest):
-    return False if b.net_premium is None else b.net_premium.premium_term
+def _premium_plan(b: BenefitRequest, core_benefit) -> pv.PremiumPlan | bool:
+    """The premiums asked for: False for none; the term by the benefit's rule when absent."""
+    premium = b.net_premium
+    if premium is None:
+        return False
+    if premium.premium_term == "whole-life":
+        term = None
+    elif premium.premium_term is None:
+        term = pv.default_premium_term(core_benefit)
+    else:
+        term = premium.premium_term
+    return pv.PremiumPlan(term, premium.frequency, premium.approximation)
+
+
+def quote_items(req) -> list[QuoteItem]:
+    items = []
+    for b in req.benefits:
+        core = _core_benefit(b)
+        durations = getattr(b, "policy_value_durations", None)
+        items.append(QuoteItem(core, _premium_plan(b, core),
+                               None if durations is None else tuple(durations)))
+    return items
+
+
+def _sensitivity(req: PresentValuesRequest) -> Sensitivity | None:
+    ask = req.sensitivities
+    if ask is None or (ask.mortality is None and ask.interest_shift is None):
+        return None
+    shock = ask.mortality
+    return Sensitivity(None if shock is None else shock.kind,
+                       0.0 if shock is None else shock.size, ask.interest_shift)
 
 
 def _finite(x: float) -> float | None:
     return x if x == x and x not in (float("inf"), float("-inf")) else None
 
 
+def _finite_list(values) -> list | None:
+    return None if values is None else [_finite(v) for v in values]
+
+
+def check_work(age: np.ndarray, duration: np.ndarray, basis, discount: pv.Discount,
+               items: list[QuoteItem], repeats: int = 1) -> int:
+    """Lives × payment times (summed over benefits, times ``repeats`` valuations); a 422 when
+    it exceeds MAX_WORK."""
+    horizon = float(np.max(basis.model.horizon(age, duration)))
+    horizon = min(horizon, discount.negligible_after())
+    per_life = sum(pv.payment_count(it.benefit, horizon) + len(it.durations or ()) for it in items)
+    work = age.shape[0] * per_life * repeats
+    if work > MAX_WORK:
+        raise bad_field(
+            "$.benefits",
+            f"lives times payment times would be about {work:,}; at most {MAX_WORK:,} are "
+            "computed in one request, so split it",
+        )
+    return work
+
+
+def _sensitivity_result(shocks, k: int, i: int) -> BenefitSensitivities | None:
+    if shocks is None:
+        return None
+
+    def pick(arrays):
+        return None if arrays is None else _finite(float(arrays[k][i]))
+
+    return BenefitSensitivities(
+        mortality_shocked_value=pick(shocks.mortality),
+        interest_up_value=pick(shocks.interest_up),
+        interest_down_value=pick(shocks.interest_down),
+        effective_duration=pick(shocks.duration),
+        convexity=pick(shocks.convexity),
+    )
+
+
+def _premium_echo(item: QuoteItem):
+    if item.premiums is False:
+        return None
+    return "whole-life" if item.premiums.term is None else item.premiums.term
+
+
 def present_value_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
     calc = Calculations(settings, catalogue)
 
     @post("/v1/present-values", operation_id="presentValues",
-          summary="Present values of annuities and insurances, their variances and premiums",
+          summary="Present values, variances, net premiums, policy values and sensitivities",
           **CALCULATION_ROUTE)
     async def present_values(request: Request[Any, Any, Any]) -> PresentValuesResponse:
-        """For each life and benefit: E[PV], E[PV²] and the standard deviation per unit, and
-        the net level annual premium when asked for."""
+        """For each life and benefit: E[PV], E[PV²] and the standard deviation per unit; the
+        net level premium when asked for (paid m times a year, over the benefit's own premium
+        term unless one is given); the prospective policy values ₜV at the durations asked
+        for; and, with `sensitivities`, the values on a shocked basis and at shifted interest
+        with the effective duration and convexity. Benefits may escalate, increase or
+        decrease; on a basis of two lives, reversionary annuities and contingent insurances
+        depend on the order of the deaths."""
         req: PresentValuesRequest = decode(
             _DECODER, await read_body(request, settings.max_body_bytes)
         )
-        discount = _discount(req.interest)
+        discount = discount_of(req.interest)
         basis = await calc.basis(request, req.basis)
         age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
-        benefits = [_core_benefit(b) for b in req.benefits]
-        premiums = [_premium_term(b) for b in req.benefits]
-        horizon = float(np.max(basis.model.horizon(age, duration)))
-        horizon = min(horizon, discount.negligible_after())
-        work = age.shape[0] * sum(pv.payment_count(b, horizon) for b in benefits)
-        if work > MAX_WORK:
-            raise bad_field(
-                "$.benefits",
-                f"lives times payment times would be about {work:,}; at most {MAX_WORK:,} are "
-                "computed in one request, so split it",
-            )
+        items = quote_items(req)
+        ask = _sensitivity(req)
+        repeats = 1 if ask is None else 1 + (ask.kind is not None) + 2 * (ask.shift is not None)
+        work = check_work(age, duration, basis, discount, items, repeats)
         model = basis.model
         found = await calc.run(
-            lambda: pv.present_values(model, age, duration, discount, benefits, premiums),
-            work // 20,
+            lambda: quote(model, age, duration, discount, items, ask), work // 20
         )
         per_benefit = [
             (r.value.tolist(), r.second_moment.tolist(), r.standard_deviation.tolist(),
-             None if r.net_premium is None else r.net_premium.tolist(), r.approximation)
-            for r in found
+             None if r.net_premium is None else r.net_premium.tolist(), r.approximation,
+             None if r.exact_value is None else r.exact_value.tolist(),
+             list(r.approximated) or None, _premium_echo(item),
+             None if reserve is None else reserve.tolist())
+            for r, item, reserve in zip(found.values, items, found.policy_values)
         ]
+        shocks = found.sensitivities
         results = []
         for i, (a, d, aa, dd) in enumerate(zip(*_echo_columns(age, duration))):
-            items = [
+            items_out = [
                 BenefitResult(
                     value=_finite(v[i]), second_moment=_finite(m2[i]),
                     standard_deviation=_finite(sd[i]),
                     net_premium=None if p is None else _finite(p[i]),
                     approximation=appr,
+                    exact_value=None if ev is None else _finite(ev[i]),
+                    approximated=which, premium_term=term,
+                    policy_values=None if res is None else _finite_list(res[i]),
+                    sensitivities=_sensitivity_result(shocks, k, i),
                 )
-                for v, m2, sd, p, appr in per_benefit
+                for k, (v, m2, sd, p, appr, ev, which, term, res) in enumerate(per_benefit)
             ]
             results.append(
-                PresentValuesResult(age=a, duration=d, ages=aa, durations=dd, benefits=items)
+                PresentValuesResult(age=a, duration=d, ages=aa, durations=dd, benefits=items_out)
             )
         answer = PresentValuesResponse(results=results, **calc.stamp(request, req, basis))
         return calc.respond(request, answer, "benefit", range(len(req.benefits)))

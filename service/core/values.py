@@ -50,6 +50,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import amounts
+from .amounts import discounted, stream_cumulative, year_index
 from .errors import ComputationLimitError, DomainError, fmt
 from .lifetime import GL_NODES, GL_WEIGHTS, LifetimeModel, YearGridModel
 
@@ -159,50 +161,15 @@ class Discount:
     def key(self) -> tuple:
         return (self.rate, self.tail_force, self.log_v_whole.tobytes())
 
-    def certain_cumulative(self, t, start: float, increasing: bool) -> np.ndarray:
-        """C(t) = ∫_start^t c(s) v(s) ds, c = 1 (or ⌊s − start⌋ + 1 when increasing), t ≥ start.
-
-        Exact: c and the force of interest are constant between the breakpoints (whole years
-        and, when increasing, start + whole years).
-        """
-        t = np.asarray(t, float)
-        top = float(np.max(t)) if t.size else start
-        n = int(math.ceil(max(top - start, 0.0))) + 2
-        points = [start + np.arange(n + 1, dtype=float)] if increasing else [np.array([start])]
-        whole = np.arange(math.ceil(start), math.ceil(top) + 2, dtype=float)
-        breaks = np.unique(np.concatenate(points + [whole[whole > start]]))
-        rate = self._stream_rate(breaks, start, increasing)
-        f = self.force(breaks)
-        logv = self.log_v(breaks)
-        seg = rate[:-1] * np.exp(logv[:-1]) * _phi(f[:-1], np.diff(breaks))
-        cum = np.concatenate([[0.0], np.cumsum(seg)])
-        i = np.clip(np.searchsorted(breaks, t, side="right") - 1, 0, breaks.size - 1)
-        return cum[i] + rate[i] * np.exp(logv[i]) * _phi(f[i], t - breaks[i])
-
-    @staticmethod
-    def _stream_rate(at, start, increasing):
-        if not increasing:
-            return np.ones_like(at)
-        return np.floor(at - start + 1e-12) + 1.0
-
-
-def _phi(f, x):
-    """∫₀ˣ e^(−f s) ds, accurate for small f x."""
-    f = np.asarray(f, float)
-    x = np.asarray(x, float)
-    fx = f * x
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        exact = -np.expm1(-fx) / np.where(f == 0.0, 1.0, f)
-    series = x * (1.0 - fx / 2.0 + fx * fx / 6.0)
-    return np.where(np.abs(fx) > 1e-5, exact, series)
-
 
 # ---- benefits ------------------------------------------------------------------------------------
 
 
 @dataclass(frozen=True)
 class LifeAnnuity:
-    """Payments of 1/m each 1/m year while the status survives (rate 1 when continuous)."""
+    """Payments of 1/m each 1/m year while the status survives (rate 1 when continuous),
+    times the amount of their year of payment (see :mod:`.amounts`: 1 in the first year, and
+    k in the k-th when increasing, (1 + e)^(k − 1) when escalating at e)."""
 
     timing: str = "advance"
     frequency: int = 1
@@ -211,17 +178,22 @@ class LifeAnnuity:
     guarantee: float = 0.0
     increasing: bool = False
     approximation: str = "exact"
+    escalation: float = 0.0
 
 
 @dataclass(frozen=True)
 class LifeInsurance:
-    """1 on death (or k + 1 on death in the k-th year of cover when increasing)."""
+    """1 on death, times the amount of the year of cover of the death (see :mod:`.amounts`:
+    k in the k-th year when increasing, (n − k + 1)/n when decreasing over a term of n years,
+    (1 + e)^(k − 1) when escalating at e)."""
 
     timing: str = "end-of-year"
     frequency: int = 1
     term: float | None = None
     deferral: float = 0.0
     increasing: bool = False
+    decreasing: bool = False
+    escalation: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -243,15 +215,46 @@ class Endowment:
 Benefit = LifeAnnuity | LifeInsurance | PureEndowment | Endowment
 
 
+def parts(b) -> list:
+    """The benefit as the parts it adds up from: an endowment is a term insurance plus a pure
+    endowment over the same term; every other benefit is one part."""
+    if isinstance(b, Endowment):
+        return [LifeInsurance(timing=b.timing, frequency=b.frequency, term=b.term),
+                PureEndowment(b.term)]
+    return [b]
+
+
+@dataclass(frozen=True)
+class PremiumPlan:
+    """Level premiums of 1/m a year each 1/m year in advance while the status survives, for
+    ``term`` years (None: for life), valued exactly or with a named approximation."""
+
+    term: float | None = None
+    frequency: int = 1
+    approximation: str = "exact"
+
+    def annuity(self) -> LifeAnnuity:
+        return LifeAnnuity(timing="advance", frequency=self.frequency, term=self.term,
+                           approximation=self.approximation)
+
+
 @dataclass
 class BenefitValues:
-    """For each life: E[PV], E[PV²], the standard deviation, and optionally a premium."""
+    """For each life: E[PV], E[PV²], the standard deviation, and optionally a premium.
+
+    With an approximation, ``value`` (and a premium from it) is approximate while
+    ``exact_value``, ``second_moment`` and ``standard_deviation`` are exact, so that
+    standard_deviation² = second_moment − exact_value²; ``approximated`` names the figures
+    that carry the approximation.
+    """
 
     value: np.ndarray
     second_moment: np.ndarray
     standard_deviation: np.ndarray
     net_premium: np.ndarray | None = None
     approximation: str | None = None
+    exact_value: np.ndarray | None = None
+    approximated: tuple[str, ...] = ()
 
 
 # ---- validation of benefits --------------------------------------------------------------------
@@ -264,6 +267,7 @@ def _whole_multiple(value: float, m: int) -> bool:
 
 def check_benefit(b: Benefit, discount: Discount) -> None:
     """Raises DomainError (fields relative to the benefit) for an impossible benefit."""
+    amounts.check_amounts(b)
     if isinstance(b, (LifeAnnuity, LifeInsurance, Endowment)):
         if not (isinstance(b.frequency, (int, np.integer)) and b.frequency >= 1):
             raise DomainError(
@@ -313,11 +317,11 @@ def check_benefit(b: Benefit, discount: Discount) -> None:
                         f"(got {fmt(value)})",
                     )
         if b.approximation != "exact":
-            if b.increasing:
+            if not amounts.is_level(b):
                 raise DomainError(
                     "approximation",
                     f"the {b.approximation} approximation applies to level annuities; value an "
-                    "increasing annuity exactly",
+                    "increasing or escalating annuity exactly",
                 )
             for name in ("term", "deferral", "guarantee"):
                 value = getattr(b, name)
@@ -369,9 +373,10 @@ def _lives_slice(age, duration, sl):
     return age[sl], duration[sl]
 
 
-def _end_of_cover(horizon: np.ndarray, start: float, term: float | None, discount: Discount):
+def _end_of_cover(horizon: np.ndarray, start: float, term: float | None, discount: Discount,
+                  b=None):
     """Where each life's payments can stop mattering: term end, horizon or discount floor."""
-    end = np.minimum(horizon, discount.negligible_after())
+    end = np.minimum(horizon, amounts.negligible_after(b, discount))
     if term is not None:
         end = np.minimum(end, start + term)
     return np.maximum(end, start)
@@ -389,10 +394,13 @@ def _check_count(count: float, field: str = "") -> int:
     return int(count)
 
 
-def _check_tail(model, age, duration, t_end: np.ndarray, discount: Discount, open_ended: bool):
-    """Whole-life values stop at the horizon: survival there, discounted, must be negligible."""
+def _check_tail(model, age, duration, t_end: np.ndarray, discount: Discount, open_ended: bool,
+                b=None, start: float = 0.0):
+    """Whole-life values stop at the horizon: survival there, discounted (and escalated),
+    must be negligible."""
     if not open_ended:
         return
+    g = amounts.growth(b)
     t_end = np.asarray(t_end, float)
     ends = np.unique(t_end)
     for t in ends:
@@ -400,9 +408,18 @@ def _check_tail(model, age, duration, t_end: np.ndarray, discount: Discount, ope
         h = model.cumulative_hazard(age[sel], duration[sel], np.array([t]))[:, 0]
         with np.errstate(over="ignore", invalid="ignore"):
             lv = float(discount.log_v(t))
+            lv = lv + g * max(float(t) - start, 0.0)
             log_w = -h + max(lv, 2.0 * lv) + math.log1p(t)
         log_w = np.where(np.isnan(log_w), -np.inf, log_w)
         if np.any(log_w > math.log(TAIL_TOLERANCE)):
+            if g > 0.0:
+                raise DomainError(
+                    "escalation",
+                    "at this escalation the present values do not converge on this basis: "
+                    "escalated, discounted survival is still not negligible where the basis "
+                    f"stops (duration {fmt(round(float(t), 6))} years); use a lower "
+                    "escalation or a term",
+                )
             raise DomainError(
                 "interest",
                 "at this interest the present values do not converge on this basis: "
@@ -431,7 +448,8 @@ def _discrete_stream(model, age, duration, times, amounts, tau):
 
 
 def _annuity_times(b: LifeAnnuity, end: float):
-    """Payment times, amounts (undiscounted) and survival times of a discrete annuity."""
+    """Payment times, their year of payment j (the amount is year_amounts(b, j) / m) and
+    survival times of a discrete annuity."""
     m = int(b.frequency)
     u, g = b.deferral, b.guarantee
     n_pay = _check_count(math.ceil(round((end - u) * m, 9)) if end > u else 0, "")
@@ -440,48 +458,43 @@ def _annuity_times(b: LifeAnnuity, end: float):
         t = u + k / m
     else:
         t = u + (k + 1.0) / m
-    amounts = np.full(n_pay, 1.0 / m)
-    if b.increasing:
-        amounts = (np.floor(k / m + 1e-12) + 1.0) / m
+    j = np.floor(k / m + amounts.YEAR_SLACK)
     if b.timing == "advance":
         guaranteed = k / m < g - 1e-12
     else:
         guaranteed = (k + 1.0) / m <= g + 1e-12
     tau = np.where(guaranteed, u, t)
-    return t, amounts, tau
+    return t, j, tau
+
+
+def _annuity_payments(b: LifeAnnuity, end: float, discount: Discount):
+    """Payment times, discounted amounts and survival times of a discrete annuity."""
+    t, j, tau = _annuity_times(b, end)
+    return t, discounted(b, j, discount.log_v(t)) / int(b.frequency), tau
 
 
 def _annuity_general(model, age, duration, horizon, b: LifeAnnuity, discount: Discount):
     if b.timing == "continuous":
         return _continuous_annuity(model, age, duration, horizon, b, discount)
-    end = _end_of_cover(horizon, b.deferral, b.term, discount)
+    end = _end_of_cover(horizon, b.deferral, b.term, discount, b)
     end = np.maximum(end, b.deferral + b.guarantee)
     top = float(np.max(end))
-    t, c, tau = _annuity_times(b, top)
-    _check_tail(model, age, duration, end, discount, b.term is None or bool(np.any(end < b.deferral + b.term)))
-    amounts = c * discount.v(t)
-    return _discrete_stream(model, age, duration, t, amounts, tau)
+    t, paid, tau = _annuity_payments(b, top, discount)
+    _check_tail(model, age, duration, end, discount,
+                b.term is None or bool(np.any(end < b.deferral + b.term)), b, b.deferral)
+    return _discrete_stream(model, age, duration, t, paid, tau)
 
 
 def _insurance_general(model, age, duration, horizon, b, discount: Discount):
     """Death benefit over [u, u + n) (n may be None): E[Z], E[Z²]."""
     u = getattr(b, "deferral", 0.0)
-    increasing = getattr(b, "increasing", False)
-    end = _end_of_cover(horizon, u, b.term, discount)
-    _check_tail(model, age, duration, end, discount, b.term is None or bool(np.any(end < u + b.term)))
+    end = _end_of_cover(horizon, u, b.term, discount, b)
+    _check_tail(model, age, duration, end, discount,
+                b.term is None or bool(np.any(end < u + b.term)), b, u)
     if b.timing == "moment-of-death":
-        return _continuous_insurance(model, age, duration, u, end, increasing, discount)
-    m = int(b.frequency) if b.timing == "end-of-period" else 1
-    top = float(np.max(end))
-    n_per = _check_count(math.ceil(round((top - u) * m, 9)) if top > u else 0, "")
-    k = np.arange(n_per + 1, dtype=float)
-    edges = u + k / m
-    benefit = np.ones(n_per)
-    if increasing:
-        benefit = np.floor(k[:-1] / m + 1e-12) + 1.0
-    v_pay = discount.v(edges[1:])
-    w1 = benefit * v_pay
-    w2 = (benefit * v_pay) ** 2
+        return _continuous_insurance(model, age, duration, u, end, b, discount)
+    edges, w1 = _death_periods(b, float(np.max(end)), discount)
+    w2 = w1 * w1
     n = age.shape[0]
     z1 = np.zeros(n)
     z2 = np.zeros(n)
@@ -495,6 +508,18 @@ def _insurance_general(model, age, duration, horizon, b, discount: Discount):
         z1[sl] = p @ w1
         z2[sl] = p @ w2
     return z1, z2
+
+
+def _death_periods(b, top: float, discount: Discount):
+    """The periods [eₖ, eₖ₊₁) of cover from the deferral u to ``top`` (years, or 1/m years
+    at end-of-period timing) and the discounted benefit paid at eₖ₊₁ on death in each."""
+    u = getattr(b, "deferral", 0.0)
+    m = int(b.frequency) if b.timing == "end-of-period" else 1
+    n_per = _check_count(math.ceil(round((top - u) * m, 9)) if top > u else 0, "")
+    k = np.arange(n_per + 1, dtype=float)
+    edges = u + k / m
+    j = np.floor(k[:-1] / m + amounts.YEAR_SLACK)
+    return edges, discounted(b, j, discount.log_v(edges[1:]))
 
 
 def _pure_endowment(model, age, duration, term: float, discount: Discount):
@@ -562,31 +587,42 @@ def _limit_offset(model, age) -> float | None:
     return float((omega - age[0]) % 1.0)
 
 
-def _continuous_annuity(model, age, duration, horizon, b: LifeAnnuity, discount: Discount):
-    u, g = b.deferral, b.guarantee
-    end = _end_of_cover(horizon, u, b.term, discount)
-    end = np.maximum(end, u + g)
-    _check_tail(model, age, duration, end, discount, b.term is None or bool(np.any(end < u + b.term)))
-    n = age.shape[0]
-    v1 = np.zeros(n)
-    v2 = np.zeros(n)
-    certain = float(discount.certain_cumulative(np.array([u + g]), u, b.increasing)[0]) if g > 0 else 0.0
-    s_u = _survival_from(model.cumulative_hazard(age, duration, np.array([u])))[:, 0]
-    v1 += s_u * certain
-    v2 += s_u * certain**2
+def continuous_nodes(model, age, duration, lo: float, end: np.ndarray, b, discount: Discount,
+                     extra=()):
+    """For each group of lives with the same kink phase: (indices, nodes t, weights w) of
+    Gauss–Legendre panels from ``lo`` to the group's latest ``end``, with edges at the
+    benefit's yearly steps (unless level) and at the times ``extra``."""
+    u = getattr(b, "deferral", 0.0)
+    steps = None if amounts.is_level(b) else u
     for phase, idx in _phase_groups(model, age, duration):
         a, d = age[idx], duration[idx]
-        lo, hi = u + g, float(np.max(end[idx]))
-        edges = _panel_edges(lo, hi, phase, [], discount, u if b.increasing else None,
-                             _limit_offset(model, a))
+        hi = float(np.max(end[idx]))
+        edges = _panel_edges(lo, hi, phase, list(extra), discount, steps, _limit_offset(model, a))
         _check_count(edges.size * 4)
         t, w = _nodes(model, a, d, edges)
         if t.size == 0:
             continue
         _check_count(t.size / 16)
-        rate = Discount._stream_rate(t, u, b.increasing)
-        cv = rate * discount.v(t)
-        cum = discount.certain_cumulative(t, u, b.increasing)
+        yield idx, t, w
+
+
+def _continuous_annuity(model, age, duration, horizon, b: LifeAnnuity, discount: Discount):
+    u, g = b.deferral, b.guarantee
+    end = _end_of_cover(horizon, u, b.term, discount, b)
+    end = np.maximum(end, u + g)
+    _check_tail(model, age, duration, end, discount,
+                b.term is None or bool(np.any(end < u + b.term)), b, u)
+    n = age.shape[0]
+    v1 = np.zeros(n)
+    v2 = np.zeros(n)
+    certain = float(stream_cumulative(b, discount, np.array([u + g]), u)[0]) if g > 0 else 0.0
+    s_u = _survival_from(model.cumulative_hazard(age, duration, np.array([u])))[:, 0]
+    v1 += s_u * certain
+    v2 += s_u * certain**2
+    for idx, t, w in continuous_nodes(model, age, duration, u + g, end, b, discount):
+        a, d = age[idx], duration[idx]
+        cv = discounted(b, year_index(t, u), discount.log_v(t))
+        cum = stream_cumulative(b, discount, t, u)
         for sl in _chunks(idx.size, t.size):
             s = _survival_from(model.cumulative_hazard(a[sl], d[sl], t))
             v1[idx[sl]] += s @ (w * cv)
@@ -594,26 +630,22 @@ def _continuous_annuity(model, age, duration, horizon, b: LifeAnnuity, discount:
     return v1, v2
 
 
-def _continuous_insurance(model, age, duration, u, end, increasing, discount: Discount):
+def density_at(model, age, duration, t) -> np.ndarray:
+    """ₜp μ at the nodes t for each life (0 where survival has ended)."""
+    s = _survival_from(model.cumulative_hazard(age, duration, t))
+    mu = model.force(age, duration, t)
+    return np.where(s > 0.0, s * np.nan_to_num(mu, nan=0.0, posinf=0.0), 0.0)
+
+
+def _continuous_insurance(model, age, duration, u, end, b, discount: Discount):
     n = age.shape[0]
     z1 = np.zeros(n)
     z2 = np.zeros(n)
-    for phase, idx in _phase_groups(model, age, duration):
+    for idx, t, w in continuous_nodes(model, age, duration, u, end, b, discount):
         a, d = age[idx], duration[idx]
-        hi = float(np.max(end[idx]))
-        edges = _panel_edges(u, hi, phase, [], discount, u if increasing else None,
-                             _limit_offset(model, a))
-        _check_count(edges.size * 4)
-        t, w = _nodes(model, a, d, edges)
-        if t.size == 0:
-            continue
-        _check_count(t.size / 16)
-        b = Discount._stream_rate(t, u, increasing)
-        bv = b * discount.v(t)
+        bv = discounted(b, year_index(t, u), discount.log_v(t))
         for sl in _chunks(idx.size, t.size):
-            s = _survival_from(model.cumulative_hazard(a[sl], d[sl], t))
-            mu = model.force(a[sl], d[sl], t)
-            dens = np.where(s > 0.0, s * np.nan_to_num(mu, nan=0.0, posinf=0.0), 0.0)
+            dens = density_at(model, a[sl], d[sl], t)
             z1[idx[sl]] += dens @ (w * bv)
             z2[idx[sl]] += dens @ (w * bv * bv)
     return z1, z2
@@ -678,6 +710,9 @@ class WholeAgeTables:
     annuity_second: np.ndarray  # (R, L + 1) E[Y²] of the annuity-due
     insurance: np.ndarray  # (R, L + 1) A (end of year of death)
     insurance_second: np.ndarray  # (R, L + 1) ²A
+    increasing: np.ndarray  # (R, L + 1) (IA): Σ k vᵏ P(K = k − 1)
+    increasing_second: np.ndarray  # (R, L + 1) Σ k v²ᵏ P(K = k − 1)
+    square_second: np.ndarray  # (R, L + 1) Σ k² v²ᵏ P(K = k − 1), the E[Z²] of (IA)
 
 
 _TABLES: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
@@ -718,6 +753,12 @@ def _build_tables(model: YearGridModel, rate: float) -> WholeAgeTables:
     ann2 = np.zeros((n_rows, n_years + 1))
     ins = np.zeros((n_rows, n_years + 1))
     ins2 = np.zeros((n_rows, n_years + 1))
+    inc = np.zeros((n_rows, n_years + 1))
+    inc2 = np.zeros((n_rows, n_years + 1))
+    sq2 = np.zeros((n_rows, n_years + 1))
+    inc[:, n_years] = v
+    inc2[:, n_years] = v * v
+    sq2[:, n_years] = v * v
     ann[:, n_years] = 1.0  # a life at the grid's end (probability ~0) dies within the year
     ann2[:, n_years] = 1.0
     ins[:, n_years] = v
@@ -729,8 +770,12 @@ def _build_tables(model: YearGridModel, rate: float) -> WholeAgeTables:
         ann2[:, j] = 1.0 + pj * (2.0 * v * ann[:, j + 1] + v * v * ann2[:, j + 1])
         ins[:, j] = v * qj + v * pj * ins[:, j + 1]
         ins2[:, j] = v * v * qj + v * v * pj * ins2[:, j + 1]
+        # a death one year later pays one more: k → k + 1, k² → k² + 2k + 1
+        inc[:, j] = v * qj + v * pj * (inc[:, j + 1] + ins[:, j + 1])
+        sq2[:, j] = v * v * qj + v * v * pj * (sq2[:, j + 1] + 2.0 * inc2[:, j + 1] + ins2[:, j + 1])
+        inc2[:, j] = v * v * qj + v * v * pj * (inc2[:, j + 1] + ins2[:, j + 1])
     lam_safe = np.where(np.isfinite(model.lam), model.lam, 1e300)
-    return WholeAgeTables(v, lam_safe, ann, ann2, ins, ins2)
+    return WholeAgeTables(v, lam_safe, ann, ann2, ins, ins2, inc, inc2, sq2)
 
 
 class _FastLives:
@@ -740,6 +785,7 @@ class _FastLives:
     """
 
     def __init__(self, model: YearGridModel, loc, rate: float):
+        self.model, self.loc, self.rate = model, loc, rate
         self.tab = whole_age_tables(model, rate)
         self.last = self.tab.lam_safe.shape[1] - 1
         # one life: plain Python numbers (numpy's fixed cost per call dominates otherwise)
@@ -796,6 +842,34 @@ class _FastLives:
             a2 - self.endow(n, 2, start) * self.at(self.tab.insurance_second, start + n),
         )
 
+    def increasing_insurance(self, n: float | None, start: float = 0.0):
+        """Σ k vᵏ P, Σ k v²ᵏ P and Σ k² v²ᵏ P over deaths in years k = 1..n from j + start."""
+        tab = self.tab
+        parts = (tab.increasing, tab.increasing_second, tab.square_second)
+        inc, inc2, sq2 = (self.at(t, start) for t in parts)
+        if n is None:
+            return inc, inc2, sq2
+        n = int(n)
+        e1, e2 = self.endow(n, 1, start), self.endow(n, 2, start)
+        a_n, a2_n = self.at(tab.insurance, start + n), self.at(tab.insurance_second, start + n)
+        inc_n, inc2_n, sq2_n = (self.at(t, start + n) for t in parts)
+        # after n years a death in year k of the rest pays n + k
+        return (
+            inc - e1 * (inc_n + n * a_n),
+            inc2 - e2 * (inc2_n + n * a2_n),
+            sq2 - e2 * (sq2_n + 2.0 * n * inc2_n + n * n * a2_n),
+        )
+
+    def at_rate(self, rate: float) -> _FastLives:
+        """The same lives at another rate (an escalating benefit's rate (1 + i)/(1 + e) − 1)."""
+        return self if rate == self.rate else _FastLives(self.model, self.loc, rate)
+
+
+def escalated_rate(rate: float, escalation: float) -> float:
+    """(1 + i)/(1 + e) − 1: payments growing by (1 + e) a year, discounted at i, are level
+    payments discounted at this rate."""
+    return (rate - escalation) / (1.0 + escalation)
+
 
 def _annuity_certain_due(v: float, n: int) -> float:
     """ä_n at v: Σ_{k<n} vᵏ."""
@@ -810,8 +884,13 @@ def _is_whole(x) -> bool:
     return x is None or (float(x) == math.floor(float(x)))
 
 
-def _benefit_on_fast_path(b: Benefit) -> bool:
-    """Level annual benefits with whole-year terms, deferrals and guarantees."""
+def _benefit_on_fast_path(b: Benefit, rate: float) -> bool:
+    """Annual benefits with whole-year terms, deferrals and guarantees: level or escalating
+    (at a rate that leaves (1 + i)/(1 + e) − 1 on the fast path), and insurances increasing
+    or decreasing."""
+    escalation = getattr(b, "escalation", 0.0)
+    if escalation != 0.0 and escalated_rate(rate, escalation) < FAST_RATES_FROM:
+        return False
     if isinstance(b, LifeAnnuity):
         return (
             b.timing in ("advance", "arrears")
@@ -824,7 +903,7 @@ def _benefit_on_fast_path(b: Benefit) -> bool:
         getattr(b, "timing", "") == "end-of-period" and getattr(b, "frequency", 1) == 1
     )
     if isinstance(b, LifeInsurance):
-        return annual and not b.increasing and _is_whole(b.term) and _is_whole(b.deferral)
+        return annual and _is_whole(b.term) and _is_whole(b.deferral)
     if isinstance(b, Endowment):
         return annual and _is_whole(b.term)
     return _is_whole(b.term)
@@ -844,7 +923,6 @@ def _fast_lives(model, age, duration, discount: Discount) -> _FastLives | None:
 
 def _fast_values(lives: _FastLives, n_lives: int, b: Benefit):
     """E[PV], E[PV²] from the whole-age tables (see the module docstring)."""
-    v = lives.tab.v
     if isinstance(b, PureEndowment):
         return _array(lives.endow(b.term), n_lives), _array(lives.endow(b.term, 2), n_lives)
     if isinstance(b, Endowment):
@@ -853,7 +931,20 @@ def _fast_values(lives: _FastLives, n_lives: int, b: Benefit):
                 _array(z2 + lives.endow(b.term, 2), n_lives))
     if isinstance(b, LifeInsurance):
         u = int(b.deferral)
-        z1, z2 = lives.insurance(b.term, u)
+        if b.increasing or b.decreasing:
+            inc, inc2, sq2 = lives.increasing_insurance(b.term, u)
+            z1, z2 = inc, sq2
+            if b.decreasing:  # (n − k + 1)/n = ((n + 1) − k)/n in year k
+                n = int(b.term)
+                a1, a2 = lives.insurance(n, u)
+                z1 = ((n + 1) * a1 - inc) / n
+                z2 = ((n + 1) ** 2 * a2 - 2.0 * (n + 1) * inc2 + sq2) / (n * n)
+        elif b.escalation != 0.0:  # (1 + e)^k v^(k+1) = v'^(k+1) / (1 + e)
+            grow = 1.0 + b.escalation
+            z1, z2 = lives.at_rate(escalated_rate(lives.rate, b.escalation)).insurance(b.term, u)
+            z1, z2 = z1 / grow, z2 / (grow * grow)
+        else:
+            z1, z2 = lives.insurance(b.term, u)
         if u:
             z1 = lives.endow(u) * z1
             z2 = lives.endow(u, 2) * z2
@@ -861,26 +952,32 @@ def _fast_values(lives: _FastLives, n_lives: int, b: Benefit):
     # a life annuity in advance: guarantee g, term n, deferral u, as
     # Y = 1{T > u} v^u (ä_g + 1{T > u + g} v^g Y'), Y' the annuity-due for n − g years at x + u + g;
     # in arrears, payments at 1..n are the advance annuity with (g + 1, n + 1) less the first 1
+    # an escalation e is level payments at v' = v (1 + e) from the start of payments, the
+    # arrears ones divided by (1 + e): (1 + e)^k v^(k+1) = v'^(k+1) / (1 + e)
     u, g = int(b.deferral), int(b.guarantee)
     n = None if b.term is None else int(b.term)
+    pay = lives.at_rate(escalated_rate(lives.rate, b.escalation)) if b.escalation else lives
     arrears = b.timing == "arrears"
     if arrears:
         g = g + 1
         n = None if n is None else n + 1
-    certain = _annuity_certain_due(v, g)
+    certain = _annuity_certain_due(pay.tab.v, g)
     rest = None if n is None else n - g
     if rest is not None and rest <= 0:
         y1 = certain if lives.scalar else np.full(n_lives, certain)
         y2 = y1 * certain
     else:
-        l1, l2 = lives.annuity_due(rest, u + g)
-        e1 = lives.endow(g, 1, u) if g else 1.0
-        e2 = lives.endow(g, 2, u) if g else 1.0
+        l1, l2 = pay.annuity_due(rest, u + g)
+        e1 = pay.endow(g, 1, u) if g else 1.0
+        e2 = pay.endow(g, 2, u) if g else 1.0
         y1 = certain + e1 * l1
         y2 = certain**2 + 2.0 * certain * e1 * l1 + e2 * l2
     if arrears:
         y2 = y2 - 2.0 * y1 + 1.0
         y1 = y1 - 1.0
+        if b.escalation:
+            grow = 1.0 + b.escalation
+            y1, y2 = y1 / grow, y2 / (grow * grow)
     if u:
         y1 = lives.endow(u) * y1
         y2 = lives.endow(u, 2) * y2
@@ -906,12 +1003,12 @@ def _check_reach(horizon: np.ndarray, b: Benefit) -> None:
         if bad.size:
             i = int(bad[0])
             what = "deferral" if name == "deferral" else "deferral plus guarantee"
-            raise DomainError(
-                name,
-                f"the {what} ({fmt(reach)} years) reaches past the limiting age of the basis "
-                f"for lives[{i}], whose survival ends (or becomes negligible) after "
-                f"{fmt(round(float(horizon[i]), 6))} years",
-            )
+            raise DomainError(name, past_the_limit(f"the {what} ({fmt(reach)} years)", i, horizon))
+
+
+def past_the_limit(what: str, i: int, horizon: np.ndarray) -> str:
+    return (f"{what} reaches past the limiting age of the basis for lives[{i}], whose survival "
+            f"ends (or becomes negligible) after {fmt(round(float(horizon[i]), 6))} years")
 
 
 class Valuation:
@@ -929,17 +1026,17 @@ class Valuation:
         self.fast = _fast_lives(model, self.age, self.duration, discount) if fast else None
         self._premium_annuities: dict = {}
 
-    def values(self, b: Benefit, premium_term: float | None | bool = False) -> BenefitValues:
-        """E[PV], E[PV²] and the standard deviation per unit of benefit for each life.
-
-        ``premium_term``: False for no premium; None for premiums for life; n for n years.
-        """
+    def moments(self, b: Benefit) -> tuple[np.ndarray, np.ndarray]:
+        """E[PV], E[PV²] per unit for each life, exact (fast path or general path)."""
+        if hasattr(b, "moments"):  # a benefit on two lives values itself (two_lives.py)
+            b.check(self)
+            return b.moments(self)
         check_benefit(b, self.discount)
         _check_reach(self.horizon, b)
         model, age, duration, horizon, discount = (
             self.model, self.age, self.duration, self.horizon, self.discount,
         )
-        if self.fast is not None and _benefit_on_fast_path(b):
+        if self.fast is not None and _benefit_on_fast_path(b, self.fast.rate):
             first, second = _fast_values(self.fast, age.shape[0], b)
         elif isinstance(b, LifeAnnuity):
             first, second = _annuity_general(model, age, duration, horizon, b, discount)
@@ -951,35 +1048,88 @@ class Valuation:
             z1, z2 = _insurance_general(model, age, duration, horizon, b, discount)
             e1, e2 = _pure_endowment(model, age, duration, b.term, discount)
             first, second = z1 + e1, z2 + e2
+        if not (np.all(np.isfinite(first)) and np.all(np.isfinite(second))):
+            field = "escalation" if getattr(b, "escalation", 0.0) else "interest"
+            raise DomainError(
+                field,
+                "the present values are too large to represent on this basis: payments grow "
+                "faster than survival and discounting make them fall; use a lower escalation, "
+                "a higher rate or a term",
+            )
+        return first, second
+
+    def values(self, b: Benefit, premium_term=False) -> BenefitValues:
+        """E[PV], E[PV²] and the standard deviation per unit of benefit for each life.
+
+        ``premium_term``: False for no premium; a :class:`PremiumPlan`; or, for annual
+        premiums, None for premiums for life and n for n years.
+        """
+        first, second = self.moments(b)
         sd = np.sqrt(np.maximum(second - first * first, 0.0))
         approximation = getattr(b, "approximation", "exact")
         value = first
+        approximated: tuple[str, ...] = ()
         if approximation != "exact":
-            value = _approximate_value(model, age, duration, horizon, b, discount)
+            model, age, duration = self.model, self.age, self.duration
+            value = _approximate_value(model, age, duration, self.horizon, b, self.discount)
+            approximated = ("value",)
         out = BenefitValues(
-            value, second, sd, approximation=None if approximation == "exact" else approximation
+            value, second, sd, approximation=None if approximation == "exact" else approximation,
+            exact_value=first if approximated else None,
         )
         if premium_term is not False:
-            out.net_premium = value / self.premium_annuity(premium_term)
+            plan = as_premium_plan(premium_term)
+            out.net_premium = value / self.premium_annuity(plan)
+            if approximated or plan.approximation != "exact":
+                approximated = approximated + ("net_premium",)
+        out.approximated = approximated
         return out
 
-    def premium_annuity(self, premium_term: float | None) -> np.ndarray:
-        """ä_{x:n} (or ä_x): annual premiums in advance while the status survives."""
-        if premium_term is not None and not (
-            premium_term >= 1 and float(premium_term) == math.floor(premium_term)
-        ):
-            raise DomainError(
-                "net_premium.premium_term",
-                f"premium_term must be a whole number of years, at least 1 (got {premium_term!r})",
-            )
-        key = premium_term
-        if key not in self._premium_annuities:
-            premiums = LifeAnnuity(timing="advance", frequency=1, term=premium_term)
+    def premium_annuity(self, plan: PremiumPlan | float | None) -> np.ndarray:
+        """ä⁽ᵐ⁾_{x:n} (or ä⁽ᵐ⁾_x): 1 a year in premiums of 1/m each 1/m year in advance while
+        the status survives (approximate when the plan names an approximation)."""
+        plan = as_premium_plan(plan)
+        check_premium_plan(plan)
+        if plan not in self._premium_annuities:
             try:
-                self._premium_annuities[key] = self.values(premiums).value
+                self._premium_annuities[plan] = self.values(plan.annuity()).value
             except DomainError as exc:
-                raise exc.within("net_premium") from None
-        return self._premium_annuities[key]
+                field = "premium_term" if exc.field == "term" else exc.field
+                raise DomainError(field, exc.message).within("net_premium") from None
+        return self._premium_annuities[plan]
+
+
+def as_premium_plan(premium_term) -> PremiumPlan:
+    """A PremiumPlan as given, or annual premiums for ``premium_term`` years (None: for life)."""
+    return premium_term if isinstance(premium_term, PremiumPlan) else PremiumPlan(premium_term)
+
+
+def check_premium_plan(plan: PremiumPlan) -> None:
+    m = plan.frequency
+    if not (isinstance(m, (int, np.integer)) and m >= 1):
+        raise DomainError("net_premium.frequency",
+                          f"frequency must be a positive whole number (got {m!r})")
+    n = plan.term
+    if n is not None and not (math.isfinite(n) and n > 0 and _whole_multiple(n, int(m))):
+        period = "years" if m == 1 else f"premium periods of 1/{m} year"
+        raise DomainError(
+            "net_premium.premium_term",
+            f"premium_term (as given, or by default the benefit's own term or deferral) must "
+            f"be a whole number of {period}, more than 0 (got {fmt(n)}): give premium_term",
+        )
+
+
+def default_premium_term(b) -> float | None:
+    """Premiums by default stop when the benefit can no longer become payable or when its
+    payments start: the term of a term insurance, an endowment or a pure endowment (after
+    any deferral), the deferral of a deferred annuity, the term of an immediate temporary
+    annuity; for life (None) for whole-life cover and immediate whole-life annuities."""
+    if hasattr(b, "default_premium_term"):
+        return b.default_premium_term()
+    u = getattr(b, "deferral", 0.0)
+    if isinstance(b, LifeAnnuity) and u > 0:
+        return u
+    return None if b.term is None else u + b.term
 
 
 def benefit_values(model: LifetimeModel, age, duration, discount: Discount, b: Benefit,

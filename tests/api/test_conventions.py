@@ -117,7 +117,8 @@ def test_present_values_as_csv_one_row_per_life_and_benefit(client):
     r = client.post("/v1/present-values", json=request, headers={"Accept": "text/csv"})
     lines = r.text.splitlines()
     assert lines[0] == (
-        "age,duration,benefit,value,second_moment,standard_deviation,net_premium,approximation"
+        "age,duration,benefit,value,second_moment,standard_deviation,net_premium,approximation,"
+        "exact_value,approximated,premium_term,policy_values,sensitivities"
     )
     expected = client.post("/v1/present-values", json=request).json()["results"][0]["benefits"]
     for line, benefit in zip(lines[1:], expected, strict=True):

@@ -18,6 +18,7 @@ from service.api.value_schemas import PresentValuesRequest
 from service.bases import definitions as d
 from service.client import (
     AsyncLifetimeClient,
+    CashFlowsResponse,
     LifetimeClient,
     LifetimeServiceError,
     PresentValuesResponse,
@@ -134,6 +135,27 @@ def test_present_values_decode_into_the_client_structs(service):
     assert annuity.standard_deviation == pytest.approx(
         math.sqrt(annuity.second_moment - annuity.value**2), rel=1e-6
     )
+
+
+def test_cash_flows_as_structs_and_csv(service):
+    request = {
+        "basis": "thistlemoor-2024-male",
+        "lives": [{"age": 45}, {"age": 50}],
+        "interest": {"rate": 0.04},
+        "benefits": [{"type": "life-insurance", "decreasing": True, "term": 3, "net_premium": {}}],
+    }
+    with LifetimeClient(service.url) as client:
+        answer = client.cash_flows(**request)
+        text = client.cash_flows_csv(**request)
+    assert isinstance(answer, CashFlowsResponse)
+    assert answer.period_end == [1.0, 2.0, 3.0]
+    # the totals are the sums over the two lives (invented Thistlemoor data)
+    outgo = [r.benefits[0].benefit_outgo for r in answer.results]
+    assert answer.total.benefits[0].benefit_outgo == pytest.approx(
+        [a + b for a, b in zip(*outgo)], rel=1e-15)
+    lines = text.strip().splitlines()
+    assert lines[0] == "life,benefit,period_start,period_end,in_force,benefit_outgo,premium_income"
+    assert len(lines) == 1 + 3 * 3  # two lives and the total, three periods
 
 
 def test_life_table_as_csv(service):
