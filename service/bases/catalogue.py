@@ -262,6 +262,8 @@ def compile_stored(stored: StoredBasisFile, where: str, resolve=None, expand=Non
     except DomainError as exc:
         field = exc.within("definition").field
         raise BasisFileError(where, "$." + field, exc.message) from None
+    if hasattr(model, "exact_ages"):  # a stored basis is always hot, exact ages included
+        model.exact_ages  # noqa: B018
     return StoredBasis(
         id=stored.id,
         title=stored.title,

@@ -47,6 +47,7 @@ EXP_TAIL = 1  # EXP_TAIL + i: s · ∫₀^∞ tⁱ ₜp dt, i < N_MOM
 EXP_CURTATE = EXP_TAIL + N_MOM - 1  # EXP_CURTATE + k: s · E[K^k], k = 1..MAX_ORDER
 _TERM_BLOCK = 128  # durations per block of a direct sum (fixed, so sums do not depend on the batch)
 EXPAND_HAZARD = 20.0  # see YearGridModel._valuable_years
+EXPANSION_BUDGET = 12_000  # years (tables) or panel-years (laws) a basis may expand
 _SUMMARY = [EXP_S, EXP_TAIL, EXP_TAIL + 1, EXP_CURTATE + 1, EXP_CURTATE + 2]
 
 # Binomial coefficients binom(k, i) for the moment shifts.
@@ -556,7 +557,23 @@ class YearGridModel(LifetimeModel):
             curt[:, j, 0] = 1.0
         self.tail_moments = tail
         self.curtate_table = curt
-        self.exact_ages = expansion.build(self._exact_age_functions, self._valuable_years())
+        self._exact_ages = None
+
+    @property
+    def exact_ages(self) -> expansion.Expansion:
+        """The per-year expansions, built on first use (an inline basis valued only at whole
+        ages never pays for them). A basis whose years would take more than
+        EXPANSION_BUDGET panel evaluations to expand keeps the direct computation."""
+        if self._exact_ages is None:
+            valid = self._valuable_years()
+            panels = getattr(self, "year_panels", None)
+            cost = int(valid.sum()) if panels is None else int(
+                np.sum(np.where(valid[0], panels[: valid.shape[1]], 0))
+            )
+            if cost > EXPANSION_BUDGET:
+                valid = np.zeros_like(valid)
+            self._exact_ages = expansion.build(self._exact_age_functions, valid)
+        return self._exact_ages
 
     def _valuable_years(self) -> np.ndarray:
         """(R, L): the years of age in which a life of the basis can be: inside its row and

@@ -147,7 +147,7 @@ CASES: list[tuple] = [
     ("select rate 1", "/v1/expectation", {"basis": {**SELECT, "select": [[0.01, 1.0], [0.011, 0.021]]}, "lives": [{"age": 60}]}, None, 422, "$.basis.select[0][1]", "below 1"),
     ("select ultimate too short", "/v1/expectation", {"basis": {**SELECT, "ultimate": [1.0]}, "lives": [{"age": 60}]}, None, 422, "$.basis.ultimate", "run to at least"),
     ("select ultimate starts late", "/v1/expectation", {"basis": {**SELECT, "ultimate_start_age": 70}, "lives": [{"age": 60}]}, None, 422, "$.basis.ultimate_start_age", "at most"),
-    ("select duration off grid", "/v1/expectation", {"basis": SELECT, "lives": [{"age": 60.5, "duration": 0}]}, None, 422, "$.lives[0].duration", "whole age"),
+    ("select rule unknown", "/v1/expectation", {"basis": SELECT, "lives": [{"age": 60.5, "duration": 0}], "selection_age_rule": "youngest"}, None, 400, "$.selection_age_rule", "invalid value"),
     ("select age before selection", "/v1/expectation", {"basis": SELECT, "lives": [{"age": 70, "duration": 1}]}, None, 422, "$.lives[0].duration", "whole age"),
     # ---- reading bases
     ("unknown stored basis GET", "/v1/bases/no-such-basis", None, None, 404, None, "GET /v1/bases"),
