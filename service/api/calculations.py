@@ -33,6 +33,7 @@ from service.version import __version__
 from . import schemas as s
 from .body import decode, read_body
 from .lives import several_lives
+from .negotiation import best_offer
 from .problems import PROBLEM_MEDIA_TYPE, Problem, bad_field, domain_problem
 
 T = TypeVar("T")
@@ -361,10 +362,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
             )
         except DomainError as exc:
             raise _life_table_problem(exc) from None
-        as_csv = (
-            request.accept.best_match(["application/json", "text/csv"], "application/json")
-            == "text/csv"
-        )
+        as_csv = best_offer(request.headers.get("accept"), _LIFE_TABLE_MEDIA) == "text/csv"
         if as_csv:
             return Response(
                 content=_csv(table),
@@ -390,6 +388,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
 
 
 LIFE_TABLE_COLUMNS = ("age", "l", "d", "q", "complete", "curtate")
+_LIFE_TABLE_MEDIA = ("application/json", "text/csv")
 
 _LIFE_FIELDS = {"lives[0].age": "start_age", "lives[0].duration": "duration"}
 
