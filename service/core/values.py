@@ -57,6 +57,12 @@ from .lifetime import GL_NODES, GL_WEIGHTS, LifetimeModel, YearGridModel
 MAX_PAYMENT_TIMES = 20_000
 #: most spot rates in a term structure
 MAX_SPOT_RATES = 1_000
+#: the domain of an annual effective rate (constant or spot): −5% to 100% a year. Real rates
+#: as low as about −3% have been used in valuations; below −5% nothing is priced, and a rate
+#: near −1 makes v(t) = (1 + i)^−t grow past every double within a few hundred years.
+MIN_RATE = -0.05
+MAX_RATE = 1.0
+RATE_DOMAIN = f"an annual effective rate from {MIN_RATE:g} to {MAX_RATE:g} (−5% to 100% a year)"
 #: discounting below e^-60 is negligible: payments after that time are left out
 LOG_DISCOUNT_NEGLIGIBLE = 60.0
 #: discounted survival at the horizon above this means the values do not converge
@@ -94,11 +100,8 @@ class Discount:
     @classmethod
     def constant(cls, rate: float) -> Discount:
         rate = float(rate)
-        if not (math.isfinite(rate) and rate > -1.0):
-            raise DomainError(
-                "interest.rate",
-                f"the rate must be a finite number greater than −1 (got {fmt(rate)})",
-            )
+        if not (MIN_RATE <= rate <= MAX_RATE):
+            raise DomainError("interest.rate", f"the rate must be {RATE_DOMAIN} (got {fmt(rate)})")
         delta = math.log1p(rate)
         return cls(np.array([0.0, -delta]), delta, rate)
 
@@ -112,12 +115,11 @@ class Discount:
                 "interest.spot_rates",
                 f"at most {MAX_SPOT_RATES} spot rates (got {s.size})",
             )
-        bad = np.flatnonzero(~(np.isfinite(s) & (s > -1.0)))
+        bad = np.flatnonzero(~((s >= MIN_RATE) & (s <= MAX_RATE)))
         if bad.size:
             k = int(bad[0])
             raise DomainError(
-                f"interest.spot_rates[{k}]",
-                f"each spot rate must be a finite number greater than −1 (got {fmt(s[k])})",
+                f"interest.spot_rates[{k}]", f"each spot rate must be {RATE_DOMAIN} (got {fmt(s[k])})"
             )
         years = np.arange(1, s.size + 1, dtype=float)
         log_v = np.concatenate([[0.0], -years * np.log1p(s)])
@@ -498,9 +500,10 @@ def _insurance_general(model, age, duration, horizon, b, discount: Discount):
 
 
 def _pure_endowment(model, age, duration, term: float, discount: Discount):
-    s = _survival_from(model.cumulative_hazard(age, duration, np.array([term])))[:, 0]
+    h = model.cumulative_hazard(age, duration, np.array([term]))[:, 0]
     lv = float(discount.log_v(term))
-    return s * math.exp(lv), s * math.exp(2.0 * lv)
+    with np.errstate(over="ignore", invalid="ignore"):  # in logs: v may be large, S tiny
+        return np.exp(lv - h), np.exp(2.0 * lv - h)
 
 
 # ---- continuous benefits: Gauss–Legendre panels between kinks ---------------------------------
@@ -914,6 +917,19 @@ def _check_reach(horizon: np.ndarray, b: Benefit) -> None:
             )
 
 
+def _check_finite(first: np.ndarray, second: np.ndarray) -> None:
+    """A present value or second moment past the largest double does not exist as a number:
+    a 422 that names the interest, never an overflow or a null."""
+    if np.all(np.isfinite(first)) and np.all(np.isfinite(second)):
+        return
+    raise DomainError(
+        "interest",
+        "at this interest the present value of this benefit (or its second moment) exceeds "
+        "the largest number the service represents (about 1.8e308): discounting at a negative "
+        "rate grows faster than survival falls; use a higher rate or a shorter term",
+    )
+
+
 class Valuation:
     """One request's lives on one basis at one interest: what every benefit shares."""
 
@@ -951,7 +967,9 @@ class Valuation:
             z1, z2 = _insurance_general(model, age, duration, horizon, b, discount)
             e1, e2 = _pure_endowment(model, age, duration, b.term, discount)
             first, second = z1 + e1, z2 + e2
-        sd = np.sqrt(np.maximum(second - first * first, 0.0))
+        _check_finite(first, second)
+        with np.errstate(over="ignore"):
+            sd = np.sqrt(np.maximum(second - first * first, 0.0))
         approximation = getattr(b, "approximation", "exact")
         value = first
         if approximation != "exact":
