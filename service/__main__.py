@@ -29,6 +29,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
     from service.api.app import create_app
     from service.api.observability import configure_logging
+    from service.api.protocol import configure as configure_protocol
     from service.bases.catalogue import BasisFileError, Catalogue
 
     configure_logging(settings.log_level)
@@ -48,6 +49,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         access_log=False,  # the service writes its own access log lines
         server_header=False,
         proxy_headers=False,
+        **configure_protocol(settings.max_header_bytes, settings.request_timeout),
     )
     # uvicorn stops gracefully on SIGTERM (in-flight requests finish), then restores the
     # handler it found and raises the signal again: this handler makes that a clean exit 0

@@ -13,11 +13,13 @@ from service.settings import Settings, from_environment
 
 from .bases import bases_handlers
 from .calculations import REQUEST_TYPES, calculation_handlers
+from .conformance import head_as_get, problems_only
 from .observability import Metrics, observe
 from .openapi import add_request_bodies, openapi_config
 from .operations import operations_handlers
 from .present_values import present_value_handlers
 from .problems import EXCEPTION_HANDLERS
+from .protocol import configure as configure_protocol
 from .security import cors_config, document_authentication, require_token
 from .value_schemas import REQUEST_TYPES as PRESENT_VALUE_TYPES
 
@@ -78,10 +80,15 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
     async def call_litestar(scope: Any, receive: Any, send: Any) -> None:
         await parent_call(app, scope, receive, send)
 
-    app._observed = observe(require_token(call_litestar, settings.auth_token), metrics)
+    app._observed = observe(
+        require_token(head_as_get(problems_only(call_litestar)), settings.auth_token), metrics
+    )
     return app
 
 
 def create_app_from_environment() -> LifetimeApp:
-    """For worker processes started by uvicorn: settings from ``LIFETIME_*`` variables."""
-    return create_app(from_environment())
+    """For worker processes started by uvicorn: settings from ``LIFETIME_*`` variables (the
+    connection limits of this worker too)."""
+    settings = from_environment()
+    configure_protocol(settings.max_header_bytes, settings.request_timeout)
+    return create_app(settings)
