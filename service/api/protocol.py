@@ -103,7 +103,7 @@ class LimitedH11Protocol(H11Protocol):
             self._start_request_timer()  # the first bytes of a further request
         self._unset_keepalive_if_required()
         self.conn.receive_data(data)
-        if self.conn.their_state is h11.IDLE and len(self.conn.trailing_data[0]) > self.max_header_bytes:
+        if self.conn.their_state is h11.IDLE and self._head_too_large():
             detail = (
                 f"the request line and headers are larger than {self.max_header_bytes} bytes "
                 f"(the max_header_bytes setting)"
@@ -113,6 +113,13 @@ class LimitedH11Protocol(H11Protocol):
         self.handle_events()
         if self.conn.their_state is h11.DONE:
             self._stop_request_timer()
+
+    def _head_too_large(self) -> bool:
+        """Whether the request head being received (not yet parsed) passes the limit: more
+        bytes than the limit have arrived and the head's blank line is not among them."""
+        buffered = self.conn.trailing_data[0]
+        limit = self.max_header_bytes
+        return len(buffered) > limit and b"\r\n\r\n" not in buffered[: limit + 4]
 
     # ---- answers written by the protocol itself
 
