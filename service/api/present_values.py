@@ -19,6 +19,7 @@ from litestar import Request, post
 
 from service.bases.catalogue import Catalogue
 from service.core import values as pv
+from service.core import work as cost
 from service.core.errors import DomainError
 from service.settings import Settings
 from service.version import __version__
@@ -40,6 +41,11 @@ from .value_schemas import (
 )
 
 _DECODER = msgspec.json.Decoder(PresentValuesRequest)
+
+
+def _continuous(b: pv.Benefit) -> bool:
+    """A benefit valued by quadrature (continuous annuity, moment-of-death insurance)."""
+    return getattr(b, "timing", "") in ("continuous", "moment-of-death")
 
 
 def _discount(interest: Interest) -> pv.Discount:
@@ -94,19 +100,35 @@ def present_value_handlers(settings: Settings, catalogue: Catalogue) -> list[Any
         age, duration = calc.lives(req.lives, basis)
         benefits = [_core_benefit(b) for b in req.benefits]
         premiums = [_premium_term(b) for b in req.benefits]
-        horizon = float(np.max(basis.model.horizon(age, duration)))
-        horizon = min(horizon, discount.negligible_after())
-        work = age.shape[0] * sum(pv.payment_count(b, horizon) for b in benefits)
+        model = basis.model
+        # an upper bound on the horizon from the structure (the horizon itself may need a
+        # search, which is work for the worker thread)
+        horizon = min(cost.years(model, float(np.min(age)) if age.size else 0.0),
+                      discount.negligible_after())
+        payments = sum(pv.payment_count(b, horizon) for b in benefits)
+        work = age.shape[0] * payments
         if work > MAX_WORK:
             raise bad_field(
                 "$.benefits",
                 f"lives times payment times would be about {work:,}; at most {MAX_WORK:,} are "
                 "computed in one request, so split it",
             )
-        model = basis.model
+        # discrete payments are evaluations at scattered times; continuous benefits are
+        # integrals on panels, like the moments
+        discrete = sum(pv.payment_count(b, horizon) for b in benefits if not _continuous(b))
+        continuous = sum(
+            pv.payment_count(b, horizon) * cost.NODES * cost.kink_families(model) / 2.0
+            for b in benefits if _continuous(b)
+        ) + cost.integral_evaluations(model, horizon) * sum(p is not False for p in premiums)
+        lives = len(req.lives)
+        estimate = cost.seconds(
+            model, lives, discrete, calls=4 * len(benefits), pointwise=True,
+            output_values=3 * age.shape[0] * len(benefits),
+        ) + cost.seconds(model, lives, continuous, needs_horizon=False, calls=0)
         found = await calc.run(
             lambda: pv.present_values(model, age, duration, discount, benefits, premiums),
-            work // 20,
+            estimate,
+            lives,
         )
         per_benefit = [
             (r.value.tolist(), r.second_moment.tolist(), r.standard_deviation.tolist(),
