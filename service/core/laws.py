@@ -329,9 +329,9 @@ class ConstantForce(Law):
     def _compile(self):  # nothing to precompute: every quantity is closed form
         pass
 
-    def expectation_summary(self, age, duration, term=None):
+    def _moment_summary(self, age, duration, term=None):
         """From the closed-form moments: this law has no year grid to look up."""
-        return LifetimeModel.expectation_summary(self, age, duration, term)
+        return LifetimeModel._moment_summary(self, age, duration, term)
 
 
 def _stirling2(k: int) -> list[int]:

@@ -238,7 +238,16 @@ class LifetimeModel(ABC):
         return surv, death, mu, dens
 
     def expectation_summary(self, age, duration, term=None):
-        """(e̊, e, Var T, Var K), whole life or temporary, from the first two moments."""
+        """(e̊, e, Var T, Var K), whole life or temporary: from the first two moments, with the
+        variances that the difference E[X²] − E[X]² would leave with few digits recomputed
+        as integrals of positive terms (:mod:`variance`)."""
+        from . import variance
+
+        summary = self._moment_summary(age, duration, term)
+        return variance.refine(self, age, duration, term, summary)
+
+    def _moment_summary(self, age, duration, term=None):
+        """(e̊, e, Var T, Var K) from the first two moments."""
         complete = self.complete_moments(age, duration, _FIRST_TWO, term)
         curtate = self.curtate_moments(age, duration, _FIRST_TWO, term)
         return (
@@ -255,12 +264,10 @@ class LifetimeModel(ABC):
         return self.curtate_moments(age, duration, [1], term)[:, 0]
 
     def complete_variance(self, age, duration, term=None) -> np.ndarray:
-        m = self.complete_moments(age, duration, [1, 2], term)
-        return np.maximum(m[:, 1] - m[:, 0] ** 2, 0.0)
+        return self.expectation_summary(age, duration, term)[2]
 
     def curtate_variance(self, age, duration, term=None) -> np.ndarray:
-        m = self.curtate_moments(age, duration, [1, 2], term)
-        return np.maximum(m[:, 1] - m[:, 0] ** 2, 0.0)
+        return self.expectation_summary(age, duration, term)[3]
 
     def curtate_quantiles(self, age, duration, probabilities) -> np.ndarray:
         """The least whole k with P(K_x ≤ k) ≥ p, i.e. with ₖ₊₁p_x ≤ 1 − p.
@@ -526,7 +533,7 @@ class YearGridModel(LifetimeModel):
 
     # ---- the hot paths ----------------------------------------------------------------------
 
-    def expectation_summary(self, age, duration, term=None):
+    def _moment_summary(self, age, duration, term=None):
         """Lives at whole ages, whole life: four lookups in the per-basis tables."""
         if term is None:
             age = as_float_array(age)
@@ -544,7 +551,7 @@ class YearGridModel(LifetimeModel):
                         np.array([max(2.0 * m1 - e0 * e0, 0.0)]),
                         np.array([max(k2 - k1 * k1, 0.0)]),
                     )
-                return super().expectation_summary(age, duration, term)
+                return super()._moment_summary(age, duration, term)
             loc = self._locate(age, duration)
             if not np.any(loc.frac > 0.0):
                 tail = self.tail_moments[loc.row, loc.index, :2]
@@ -557,7 +564,7 @@ class YearGridModel(LifetimeModel):
                     np.maximum(second - complete**2, 0.0),
                     np.maximum(curtate_second - curtate**2, 0.0),
                 )
-        return super().expectation_summary(age, duration, term)
+        return super()._moment_summary(age, duration, term)
 
     def span_hazard(self, age, duration, t0, t1):
         age, duration, t0, t1 = np.broadcast_arrays(
