@@ -22,7 +22,7 @@ from service.core.errors import DomainError
 from service.settings import Settings
 
 from .body import decode, read_body
-from .calculations import CALCULATION_TAG, ERROR_RESPONSES, Calculations, _echo_columns
+from .calculations import CALCULATION_ROUTE, Calculations, _echo_columns
 from .conventions import chosen_media_type
 from .present_values import check_work, discount_of, quote_items
 from .tabular import CSV_MEDIA_TYPE
@@ -88,7 +88,7 @@ def cash_flow_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
 
     @post("/v1/cash-flows", operation_id="cashFlows",
           summary="Expected cash flows per period: benefit outgo, premium income, in force",
-          status_code=200, tags=[CALCULATION_TAG], responses=ERROR_RESPONSES)
+          **CALCULATION_ROUTE)
     async def expected_cash_flows(request: Request[Any, Any, Any]) -> Response[CashFlowsResponse]:
         """For each life and benefit, per period of 1/`periods_per_year` year: the expected
         benefit outgo per unit (undiscounted), the expected net premium income (with

@@ -39,7 +39,7 @@ CAUTION = (
     "quantiles, derived life tables); present values of life annuities, insurances, pure "
     "endowments and endowments at interest (level, increasing, decreasing or escalating; "
     "reversionary and contingent benefits on two lives), with their second moments, net "
-    "premiums paid m times a year, prospective policy values, expected cash flows per period "
+    "level premiums (paid m times a year), prospective policy values, expected cash flows per period "
     "and sensitivities to mortality and interest; ratings (age shifts, multiples of q or of "
     "the force, extra mortality), generational mortality improvement, and several lives "
     "(joint-life and last-survivor statuses)."
