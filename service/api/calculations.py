@@ -441,6 +441,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
 
 
 LIFE_TABLE_COLUMNS = ("age", "l", "d", "q", "complete", "curtate")
+_LIFE_TABLE_MEDIA = ("application/json", "text/csv")
 
 _LIFE_FIELDS = {"lives[0].age": "start_age", "lives[0].duration": "duration"}
 

@@ -84,6 +84,8 @@ def parse_accept(header: str) -> list[MediaRange]:
         parameters: list[tuple[str, str]] = []
         weight = 1.0
         for piece in pieces[1:]:
+            if not piece:  # parameters = *( OWS ";" OWS [ parameter ] ): each one is optional
+                continue
             found = _PARAMETER.match(piece)
             if not found:
                 raise AcceptError(f"{piece!r} in {element!r} is not a parameter (name=value)")

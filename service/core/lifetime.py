@@ -713,7 +713,9 @@ class YearGridModel(LifetimeModel):
         """Lives aged age + t (duration + t): the row is that of the life at t = 0."""
         base = self._locate(age.ravel(), duration.ravel())
         start = self.row_start[base.row]
-        y = age.ravel() + t.ravel() - start
+        # every point past the grid is alike (no survival there); capping keeps a duration
+        # near 1e308 from overflowing the whole-age index
+        y = np.minimum(age.ravel() + t.ravel() - start, self.year_moments.shape[1] + 1.0)
         j = np.floor(y)
         f = y - j
         return Located(base.row.reshape(age.shape), j.astype(np.int64).reshape(age.shape),

@@ -35,7 +35,12 @@ def test_parameters_before_the_weight_belong_to_the_media_type():
     ]
 
 
-@pytest.mark.parametrize("header", ["text", "*/csv", "text/csv;;", "text/csv;q", "a b/c"])
+def test_empty_parameters_are_allowed():
+    # RFC 9110 §5.6.6: parameters = *( OWS ";" OWS [ parameter ] ), each one optional
+    assert parse_accept("text/csv;; ;q=0.5;") == [("text", "csv", (), 0.5)]
+
+
+@pytest.mark.parametrize("header", ["text", "*/csv", "text/csv;=", "text/csv;q", "a b/c"])
 def test_malformed_ranges_are_refused(header):
     with pytest.raises(AcceptError):
         parse_accept(header)

@@ -1,0 +1,163 @@
+"""One test per defect found by the second robustness round, each from its reproducer.
+
+The expected values are facts of the definitions, not of this code: a table that closes with
+q = 1 (or a law whose survival falls below every double) leaves no survivor at a duration far
+beyond its horizon, so ₜp_x = 0, ₜq_x = 1 and the density is 0 there (the definition of a
+closing table, common practice); RFC 9110 §12.4.2 and §12.5.1 define quality values and
+``q=0`` as "not acceptable".
+"""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from .own_fuzzer import GOMPERTZ, SELECT
+
+TABLE_BASES = [
+    "thistlemoor-2024-male",
+    "thistlemoor-2024-select",
+    "thistlemoor-2024-annuitants",
+    {"type": "table", "start_age": 100, "q": [0.3, 0.5, 1.0], "fractional_ages": "constant-force"},
+    {"type": "table", "start_age": 100, "q": [0.3, 0.5, 1.0], "fractional_ages": "balducci"},
+    SELECT,
+    {"type": "adjusted", "base": "thistlemoor-2024-male", "q_multiplier": 1.2},
+    {"type": "improved", "base": "thistlemoor-2024-select", "base_year": 2024,
+     "valuation_year": 2026, "rates": {"start_age": 0, "values": [0.01]}},
+    {"type": "adjusted", "base": {"type": "adjusted", "base": "thistlemoor-2024-female",
+                                   "extra_q": 0.001}, "force_multiplier": 1.1},
+]
+
+
+def problem(response, status: int, fields: list[str]) -> dict:
+    """The answer is problem+json of this status naming exactly these fields."""
+    assert response.status_code == status, response.text
+    assert response.headers["content-type"].startswith("application/problem+json")
+    body = response.json()
+    assert body["status"] == status
+    assert [e["field"] for e in body.get("errors", [])] == fields, body
+    return body
+
+
+def _life(basis) -> dict:
+    if isinstance(basis, dict) and basis.get("type") == "table":
+        return {"age": 100}
+    return {"age": 60}
+
+
+@pytest.mark.parametrize("basis", TABLE_BASES, ids=lambda b: b if isinstance(b, str) else b["type"])
+@pytest.mark.parametrize("t", [1e19, 9.3e18, 1e308, 1.7976931348623157e308])
+def test_a_duration_far_beyond_the_horizon_has_no_survivor(client, basis, t):
+    r = client.post("/v1/survival", json={"basis": basis, "lives": [_life(basis)], "t": [1.0, t]})
+    assert r.status_code == 200, r.text
+    result = r.json()["results"][0]
+    assert result["survival"][1] == 0.0
+    assert result["death"][1] == 1.0
+    assert result["density"][1] == 0.0
+    assert 0.0 < result["survival"][0] < 1.0
+
+
+@pytest.mark.parametrize("basis", TABLE_BASES[:3] + [
+    {"type": "joint-life", "members": ["thistlemoor-2024-male", GOMPERTZ]},
+], ids=str)
+def test_a_deferral_far_beyond_the_horizon_has_no_death_in_it(client, basis):
+    life = {"ages": [60, 55]} if "members" in str(basis) else {"age": 60}
+    body = {"basis": basis, "lives": [life], "deferral": [0.0, 1e19, 1e308], "period": 1e300}
+    r = client.post("/v1/deferred-death", json=body)
+    assert r.status_code == 200, r.text
+    # from age 60 everyone dies at some time after 0: the first interval holds every death
+    assert r.json()["results"][0]["probability"] == [1.0, 0.0, 0.0]
+
+
+def _nested(depth: int, opener: str = "[", closer: str = "]") -> str:
+    return opener * depth + "1" + closer * depth
+
+
+@pytest.mark.parametrize(
+    "body, field",
+    [
+        (_nested(976), "$" + "[0]" * 64),
+        ('{"zz": ' + _nested(3000) + ', "basis": "standard-ultimate", "lives": [{"age": 60}], '
+         '"t": [1]}', "$.zz" + "[0]" * 63),
+        ('{"basis": {"zz": ' + _nested(976, '{"a": ', "}") + ', "type": "gompertz", "B": 0.0001, '
+         '"c": 1.1}, "lives": [{"age": 60}], "t": [1]}', "$.basis.zz" + ".a" * 62),
+    ],
+    ids=["top", "skipped-field", "before-the-type-tag"],
+)
+def test_deep_json_is_refused_before_decoding(client, body, field):
+    r = client.post("/v1/survival", content=body, headers={"content-type": "application/json"})
+    answer = problem(r, 400, [field])
+    assert "64 levels" in answer["errors"][0]["message"]
+
+
+@pytest.mark.parametrize("depth", [9, 40, 331, 975])
+def test_deeply_nested_bases_are_refused_with_the_field(client, depth):
+    basis = '{"type": "adjusted", "force_multiplier": 1.01, "base": ' * depth
+    basis += json.dumps(GOMPERTZ) + "}" * depth
+    body = '{"basis": ' + basis + ', "lives": [{"age": 60}], "t": [1]}'
+    r = client.post("/v1/survival", content=body, headers={"content-type": "application/json"})
+    assert r.status_code in (400, 422), r.text
+    field = r.json()["errors"][0]["field"]
+    problem(r, r.status_code, [field])
+    assert field.startswith("$.basis")
+
+
+def test_a_valid_deep_basis_is_not_caught_by_the_depth_bound(client):
+    # 8 levels, the documented limit, of last-survivor statuses over select tables
+    basis = {"type": "adjusted", "base": "thistlemoor-2024-select", "force_multiplier": 1.1}
+    for _ in range(7):
+        basis = {"type": "adjusted", "base": basis, "force_multiplier": 1.0}
+    r = client.post("/v1/survival", json={"basis": basis, "lives": [{"age": 60}], "t": [1]})
+    assert r.status_code == 200, r.text
+
+
+LIFE_TABLE = {"basis": "standard-ultimate", "start_age": 60, "end_age": 62}
+
+
+@pytest.mark.parametrize(
+    "accept, media",
+    [
+        ("text/csv;q=0, application/json", "application/json"),  # §12.4.2: q=0 is "not acceptable"
+        ("text/csv;q=0.000, application/json;q=0.1", "application/json"),
+        ("text/csv", "text/csv"),
+        ("text/csv;q=0.001", "text/csv"),
+        ("text/csv;;;q=0.5", "text/csv"),  # §5.6.6: each parameter after ";" is optional
+        ("application/json;q=0, text/csv", "text/csv"),
+        ("text/csv;q=0.5, application/json;q=0.9", "application/json"),
+        ("text/csv;q=0.9, application/json;q=0.5", "text/csv"),
+        ("text/*", "text/csv"),
+        ("*/*;q=0.8, text/csv;q=0", "application/json"),  # the most specific range decides
+        ("text/*;q=0.9, */*;q=0.5", "text/csv"),
+    ],
+)
+def test_accept_is_read_as_rfc_9110_says(client, accept, media):
+    r = client.post("/v1/life-table", json=LIFE_TABLE, headers={"accept": accept})
+    assert r.status_code == 200, r.text
+    assert r.headers["content-type"].split(";")[0] == media
+    if media == "application/json":
+        assert json.loads(r.text)["results"][0]["age"] == [60.0, 61.0, 62.0]
+
+
+@pytest.mark.parametrize(
+    "accept",
+    # §12.4.2: qvalue = ( "0" [ "." 0*3DIGIT ] ) / ( "1" [ "." 0*3("0") ] )
+    ["text/csv;q=inf", "text/csv;q=1e400", "text/csv;q=-inf", "text/csv;q=nan",
+     "text/csv;q=1.0001", "text/csv;q=-1", "text/csv;q=", "q=1"],
+)
+def test_a_malformed_accept_is_a_400_naming_the_header(client, accept):
+    r = client.post("/v1/life-table", json=LIFE_TABLE, headers={"accept": accept})
+    assert r.status_code == 400, r.text
+    assert r.headers["content-type"].startswith("application/problem+json")
+    assert r.json()["detail"].startswith("Accept: ")
+
+
+@pytest.mark.parametrize(
+    "accept",
+    # §12.5.1: a range with parameters matches only a type with those parameters
+    ["text/csv;q=0", "text/csv;" + "x=1;" * 200],
+)
+def test_an_accept_that_rules_out_every_offer_is_a_406(client, accept):
+    r = client.post("/v1/life-table", json=LIFE_TABLE, headers={"accept": accept})
+    assert r.status_code == 406, r.text
+    assert "application/json or text/csv" in r.json()["detail"]
