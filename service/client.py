@@ -77,7 +77,7 @@ from service.api.value_schemas import (
     PresentValuesResponse,
     PresentValuesResult,
 )
-from service.bases.validation import field_error
+from service.bases.validation import field_error, outside_domain
 
 __all__ = [
     "AsyncLifetimeClient",
@@ -161,18 +161,21 @@ def _from_answer(response: httpx.Response) -> LifetimeServiceError:
 
 #: the service's title for a request off the schema (its problem kind "invalid-request")
 INVALID_REQUEST_TITLE = "Request does not fit the schema"
+#: the service's title for a value of the right type outside its bounds ("outside-domain")
+OUTSIDE_DOMAIN_TITLE = "Outside the domain"
 
 
 def _unfit(exc: msgspec.ValidationError) -> LifetimeServiceError:
     """The service's own answer to this request, made without sending it: the same field
     path, message, title and type (``service.bases.validation.field_error`` words both)."""
     where, message = field_error(str(exc))
+    bound = outside_domain(str(exc))  # the service's one rule: bounds 422, the schema 400
     return LifetimeServiceError(
         status=None,
-        title=INVALID_REQUEST_TITLE,
+        title=OUTSIDE_DOMAIN_TITLE if bound else INVALID_REQUEST_TITLE,
         detail=f"{where}: {message}",
         errors=[(where, message)],
-        type="/problems/invalid-request",
+        type="/problems/outside-domain" if bound else "/problems/invalid-request",
         sent=False,
     )
 

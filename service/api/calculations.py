@@ -91,8 +91,9 @@ ERROR_RESPONSES = {
     413: _error_response("The body is larger than max_body_bytes."),
     415: _error_response("The body is not application/json."),
     422: _error_response(
-        "Well formed but impossible: a parameter outside its domain, an age at or past the "
-        "limiting age, a table that does not close, too many lives or durations."
+        "Well formed but impossible: a parameter outside its domain or its documented bounds, "
+        "an age at or past the limiting age, a table that does not close, too many lives or "
+        "durations, or more work than one request may ask for."
     ),
     503: _error_response("The service is still loading its stored bases."),
 }
@@ -325,9 +326,9 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         seen: set[int] = set()
         for i, k in enumerate(orders):
             if k in seen:
-                field = f"$.orders[{i}]"
-                message = f"order {k} appears twice; the orders must be distinct"
-                raise Problem("invalid-request", f"{field}: {message}", [(field, message)])
+                raise bad_field(
+                    f"$.orders[{i}]", f"order {k} appears twice; the orders must be distinct"
+                )
             seen.add(k)
         basis = await calc.basis(request, req.basis)
         age, duration = calc.lives(req.lives, basis, req.selection_age_rule)

@@ -20,7 +20,7 @@ from service.bases.catalogue import (
     UnknownBasisError,
     UnknownBasisVersionError,
 )
-from service.bases.validation import field_error
+from service.bases.validation import field_error, outside_domain
 from service.core.errors import DomainError
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
@@ -33,8 +33,9 @@ PROBLEM_KINDS: dict[str, tuple[int, str, str]] = {
     "invalid-request": (
         400,
         "Request does not fit the schema",
-        "A field is missing, has the wrong type, is outside its documented bounds, or is not "
-        "a field of this request. Each entry of `errors` names one.",
+        "A field is missing, has the wrong type, or is not a field of this request. Each "
+        "entry of `errors` names one. (A value of the right type outside its documented "
+        "bounds is an outside-domain problem, 422.)",
     ),
     "unauthorized": (
         401,
@@ -90,9 +91,9 @@ PROBLEM_KINDS: dict[str, tuple[int, str, str]] = {
     "outside-domain": (
         422,
         "Outside the domain",
-        "The request is well formed but impossible: a parameter outside its domain, an age "
-        "at or past the basis's limiting age, a table that does not close, or more lives or "
-        "durations than the service takes in one request.",
+        "The request is well formed but impossible: a parameter outside its domain or its "
+        "documented bounds, an age at or past the basis's limiting age, a table that does not "
+        "close, or more lives or durations than the service takes in one request.",
     ),
     "not-ready": (
         503,
@@ -149,8 +150,11 @@ def domain_problem(error: DomainError, prefix: str = "") -> Problem:
 # ---- msgspec decoding errors -> 400 ----------------------------------------------------------
 
 def from_validation_error(exc: msgspec.ValidationError) -> Problem:
-    field, message = field_error(str(exc))
-    return Problem("invalid-request", f"{field}: {message}", [(field, message)])
+    """400 for a body that does not fit the schema; 422 for a value outside its bounds."""
+    text = str(exc)
+    field, message = field_error(text)
+    kind = "outside-domain" if outside_domain(text) else "invalid-request"
+    return Problem(kind, f"{field}: {message}", [(field, message)])
 
 
 def from_decode_error(exc: msgspec.DecodeError) -> Problem:

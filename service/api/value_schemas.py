@@ -19,8 +19,12 @@ MAX_BENEFITS = 50
 #: lives × payment times (summed over benefits) above which a request is refused
 MAX_WORK = 50_000_000
 
+#: the domain of an annual effective rate (the core's service.core.values.MIN_RATE, MAX_RATE)
+MIN_RATE, MAX_RATE = -0.05, 1.0
 Rate = Annotated[
-    float, Meta(gt=-1, le=100, description="annual effective rate, greater than −1")
+    float,
+    Meta(ge=MIN_RATE, le=MAX_RATE,
+         description="annual effective rate, from −0.05 to 1 (−5% to 100% a year)"),
 ]
 Years = Annotated[float, Meta(gt=0, le=10_000)]
 Frequency = Annotated[
@@ -30,7 +34,7 @@ Frequency = Annotated[
 
 
 class Interest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
-    """Give exactly one: `rate` (constant annual effective rate i > −1) or `spot_rates`
+    """Give exactly one: `rate` (constant annual effective rate i, −0.05 ≤ i ≤ 1) or `spot_rates`
     (annual effective spot rate for each whole year 1, 2, …, K; the last continues beyond K;
     between whole years the forward force of interest is constant, so v(t) is continuous)."""
 

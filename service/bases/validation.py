@@ -45,6 +45,16 @@ def _child(path: str, name: str) -> str:
     return f"{path}[{msgspec.json.encode(name).decode()}]"
 
 
+def outside_domain(text: str) -> bool:
+    """Whether a msgspec ValidationError is a value outside its documented bounds (a number
+    above or below a limit, a list too long or too short), rather than a body that does not
+    fit the schema. The service's one rule: a value of the right type outside its domain is
+    a 422, a missing or unknown field or a wrong type a 400."""
+    m = _AT.match(text)
+    message = m.group("message") if m else text
+    return bool(_BOUND.match(message) or _LENGTH.match(message))
+
+
 def field_error(text: str) -> tuple[str, str]:
     """(JSON path, message) for a msgspec ValidationError's text, in plain words."""
     m = _AT.match(text)

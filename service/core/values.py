@@ -59,6 +59,12 @@ from .lifetime import GL_NODES, GL_WEIGHTS, LifetimeModel, YearGridModel
 MAX_PAYMENT_TIMES = 20_000
 #: most spot rates in a term structure
 MAX_SPOT_RATES = 1_000
+#: the domain of an annual effective rate (constant or spot): −5% to 100% a year. Real rates
+#: as low as about −3% have been used in valuations; below −5% nothing is priced, and a rate
+#: near −1 makes v(t) = (1 + i)^−t grow past every double within a few hundred years.
+MIN_RATE = -0.05
+MAX_RATE = 1.0
+RATE_DOMAIN = f"an annual effective rate from {MIN_RATE:g} to {MAX_RATE:g} (−5% to 100% a year)"
 #: discounting below e^-60 is negligible: payments after that time are left out
 LOG_DISCOUNT_NEGLIGIBLE = 60.0
 #: discounted survival at the horizon above this means the values do not converge
@@ -96,11 +102,8 @@ class Discount:
     @classmethod
     def constant(cls, rate: float) -> Discount:
         rate = float(rate)
-        if not (math.isfinite(rate) and rate > -1.0):
-            raise DomainError(
-                "interest.rate",
-                f"the rate must be a finite number greater than −1 (got {fmt(rate)})",
-            )
+        if not (MIN_RATE <= rate <= MAX_RATE):
+            raise DomainError("interest.rate", f"the rate must be {RATE_DOMAIN} (got {fmt(rate)})")
         delta = math.log1p(rate)
         return cls(np.array([0.0, -delta]), delta, rate)
 
@@ -114,12 +117,11 @@ class Discount:
                 "interest.spot_rates",
                 f"at most {MAX_SPOT_RATES} spot rates (got {s.size})",
             )
-        bad = np.flatnonzero(~(np.isfinite(s) & (s > -1.0)))
+        bad = np.flatnonzero(~((s >= MIN_RATE) & (s <= MAX_RATE)))
         if bad.size:
             k = int(bad[0])
             raise DomainError(
-                f"interest.spot_rates[{k}]",
-                f"each spot rate must be a finite number greater than −1 (got {fmt(s[k])})",
+                f"interest.spot_rates[{k}]", f"each spot rate must be {RATE_DOMAIN} (got {fmt(s[k])})"
             )
         years = np.arange(1, s.size + 1, dtype=float)
         log_v = np.concatenate([[0.0], -years * np.log1p(s)])
@@ -523,9 +525,10 @@ def _death_periods(b, top: float, discount: Discount):
 
 
 def _pure_endowment(model, age, duration, term: float, discount: Discount):
-    s = _survival_from(model.cumulative_hazard(age, duration, np.array([term])))[:, 0]
+    h = model.cumulative_hazard(age, duration, np.array([term]))[:, 0]
     lv = float(discount.log_v(term))
-    return s * math.exp(lv), s * math.exp(2.0 * lv)
+    with np.errstate(over="ignore", invalid="ignore"):  # in logs: v may be large, S tiny
+        return np.exp(lv - h), np.exp(2.0 * lv - h)
 
 
 # ---- continuous benefits: Gauss–Legendre panels between kinks ---------------------------------
@@ -1052,9 +1055,9 @@ class Valuation:
             field = "escalation" if getattr(b, "escalation", 0.0) else "interest"
             raise DomainError(
                 field,
-                "the present values are too large to represent on this basis: payments grow "
-                "faster than survival and discounting make them fall; use a lower escalation, "
-                "a higher rate or a term",
+                "the present values (or their second moments) exceed the largest number the "
+                "service represents (about 1.8e308): payments grow faster than survival and "
+                "discounting make them fall; use a lower escalation, a higher rate or a term",
             )
         return first, second
 
@@ -1065,7 +1068,8 @@ class Valuation:
         premiums, None for premiums for life and n for n years.
         """
         first, second = self.moments(b)
-        sd = np.sqrt(np.maximum(second - first * first, 0.0))
+        with np.errstate(over="ignore"):
+            sd = np.sqrt(np.maximum(second - first * first, 0.0))
         approximation = getattr(b, "approximation", "exact")
         value = first
         approximated: tuple[str, ...] = ()

@@ -76,23 +76,26 @@ def test_non_finite_numbers_are_refused(client, literal, assert_problem):
 )
 def test_schema_mismatch_names_the_field(client, body, field, words, assert_problem):
     r = post_json(client, "/v1/survival", body)
-    problem = assert_problem(r, 400, "invalid-request", [field])
+    # one rule: a value of the right type outside its bounds is 422, a schema mismatch 400
+    outside = words.startswith(("greater than", "at least", "at most"))
+    status, kind = (422, "outside-domain") if outside else (400, "invalid-request")
+    problem = assert_problem(r, status, kind, [field])
     assert words in problem["errors"][0]["message"]
 
 
 def test_orders_must_be_distinct(client, assert_problem):
     r = post_json(client, "/v1/moments", {"basis": "standard-ultimate", "lives": LIFE, "orders": [1, 2, 1]})
-    assert_problem(r, 400, "invalid-request", ["$.orders[2]"])
+    assert_problem(r, 422, "outside-domain", ["$.orders[2]"])
 
 
 def test_probabilities_strictly_inside(client, assert_problem):
     r = post_json(client, "/v1/quantiles", {"basis": "standard-ultimate", "lives": LIFE, "probabilities": [0.5, 1]})
-    assert_problem(r, 400, "invalid-request", ["$.probabilities[1]"])
+    assert_problem(r, 422, "outside-domain", ["$.probabilities[1]"])
 
 
 def test_term_whole_and_bounded(client, assert_problem):
     r = post_json(client, "/v1/expectation", {"basis": "standard-ultimate", "lives": LIFE, "term": 0})
-    assert_problem(r, 400, "invalid-request", ["$.term"])
+    assert_problem(r, 422, "outside-domain", ["$.term"])
     r = post_json(client, "/v1/expectation", {"basis": "standard-ultimate", "lives": LIFE, "term": 2.5})
     assert_problem(r, 400, "invalid-request", ["$.term"])
 

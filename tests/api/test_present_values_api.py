@@ -91,16 +91,16 @@ def test_spot_rates_and_inline_basis(client):
 @pytest.mark.parametrize(
     "interest,benefits,status,kind,field",
     [
-        ({"rate": -1}, [{"type": "life-annuity"}], 400, "invalid-request", "$.interest.rate"),
-        ({"rate": -1.5}, [{"type": "life-annuity"}], 400, "invalid-request", "$.interest.rate"),
+        ({"rate": -1}, [{"type": "life-annuity"}], 422, "outside-domain", "$.interest.rate"),
+        ({"rate": -1.5}, [{"type": "life-annuity"}], 422, "outside-domain", "$.interest.rate"),
         ({"spot_rates": [0.03, None, 0.04]}, [{"type": "life-annuity"}], 400, "invalid-request",
          "$.interest.spot_rates[1]"),
-        ({"spot_rates": []}, [{"type": "life-annuity"}], 400, "invalid-request", "$.interest.spot_rates"),
+        ({"spot_rates": []}, [{"type": "life-annuity"}], 422, "outside-domain", "$.interest.spot_rates"),
         ({}, [{"type": "life-annuity"}], 422, "outside-domain", "$.interest"),
         ({"rate": 0.05, "spot_rates": [0.05]}, [{"type": "life-annuity"}], 422, "outside-domain", "$.interest"),
         ({"rate": 0.05}, [{"type": "life-annuity", "frequency": 2.5}], 400, "invalid-request",
          "$.benefits[0].frequency"),
-        ({"rate": 0.05}, [{"type": "life-annuity", "frequency": 0}], 400, "invalid-request",
+        ({"rate": 0.05}, [{"type": "life-annuity", "frequency": 0}], 422, "outside-domain",
          "$.benefits[0].frequency"),
         ({"rate": 0.05}, [{"type": "life-annuity"}, {"type": "life-annuity", "deferral": 95}], 422,
          "outside-domain", "$.benefits[1].deferral"),
@@ -110,7 +110,7 @@ def test_spot_rates_and_inline_basis(client):
          "$.benefits[0]"),
         ({"rate": 0.05}, [{"type": "pension"}], 400, "invalid-request", "$.benefits[0].type"),
         ({"rate": 0.05}, [{"type": "pure-endowment"}], 400, "invalid-request", "$.benefits[0].term"),
-        ({"rate": 0.05}, [], 400, "invalid-request", "$.benefits"),
+        ({"rate": 0.05}, [], 422, "outside-domain", "$.benefits"),
         ({"spot_rates": [0.05]}, [{"type": "life-annuity", "frequency": 12, "approximation": "udd"}], 422,
          "outside-domain", "$.benefits[0].approximation"),
         ({"rate": 0.05}, [{"type": "life-insurance", "frequency": 12}], 422, "outside-domain",
@@ -126,7 +126,8 @@ def test_bad_input_is_a_problem_with_the_field(client, assert_problem, interest,
 
 
 def test_values_that_do_not_converge_are_422(client, assert_problem):
-    r = _post(client, [{"type": "life-annuity"}], interest={"rate": -0.5},
+    # v(t) ₜp = e^((0.0408 − 0.01) t) grows: at −4% a force of 0.01 does not converge
+    r = _post(client, [{"type": "life-annuity"}], interest={"rate": -0.04},
               basis={"type": "constant-force", "mu": 0.01})
     assert_problem(r, 422, "outside-domain", ["$.interest"])
 

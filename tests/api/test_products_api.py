@@ -175,8 +175,8 @@ def test_cash_flows_json_and_csv(client):
 @pytest.mark.parametrize(
     "benefits,extra,status,field",
     [
-        ([{"type": "life-annuity", "escalation": -1}], {}, 400, "$.benefits[0].escalation"),
-        ([{"type": "life-annuity", "escalation": 1.5}], {}, 400, "$.benefits[0].escalation"),
+        ([{"type": "life-annuity", "escalation": -1}], {}, 422, "$.benefits[0].escalation"),
+        ([{"type": "life-annuity", "escalation": 1.5}], {}, 422, "$.benefits[0].escalation"),
         ([{"type": "life-insurance", "decreasing": True}], {}, 422, "$.benefits[0].decreasing"),
         ([{"type": "life-insurance", "decreasing": True, "increasing": True, "term": 5}], {}, 422,
          "$.benefits[0].decreasing"),
@@ -184,7 +184,7 @@ def test_cash_flows_json_and_csv(client):
            "approximation": "udd"}], {}, 422, "$.benefits[0].approximation"),
         ([{"type": "life-insurance", "term": 20, "policy_value_durations": [5, 21]}], {}, 422,
          "$.benefits[0].policy_value_durations[1]"),
-        ([{"type": "life-insurance", "term": 20, "policy_value_durations": [-1]}], {}, 400,
+        ([{"type": "life-insurance", "term": 20, "policy_value_durations": [-1]}], {}, 422,
          "$.benefits[0].policy_value_durations[0]"),
         ([{"type": "life-annuity", "frequency": 12, "approximation": "woolhouse",
            "policy_value_durations": [1]}], {}, 422, "$.benefits[0].policy_value_durations"),
@@ -200,8 +200,8 @@ def test_cash_flows_json_and_csv(client):
          422, "$.sensitivities.mortality.kind"),
         ([{"type": "life-annuity"}], {"sensitivities": {"mortality": {"kind": "force",
                                                                        "size": -1}}},
-         400, "$.sensitivities.mortality.size"),
-        ([{"type": "life-annuity"}], {"sensitivities": {"interest_shift": 0}}, 400,
+         422, "$.sensitivities.mortality.size"),
+        ([{"type": "life-annuity"}], {"sensitivities": {"interest_shift": 0}}, 422,
          "$.sensitivities.interest_shift"),
     ],
 )
@@ -212,10 +212,15 @@ def test_bad_input_names_the_field(client, assert_problem, benefits, extra, stat
 
 
 def test_extreme_rates_and_escalations_are_finite_or_refused(client, assert_problem):
-    # a rate near −1 over a short term: huge but finite values
+    # a rate near −1 is outside the interest domain (−5% to 100%): a 422 on the rate
     r = _post(client, [{"type": "life-annuity", "term": 5}], interest={"rate": -0.999999})
-    (b,), = _benefits(r)
-    assert b["value"] > 1e20
+    assert_problem(r, 422, "outside-domain", ["$.interest.rate"])
+    # at −5% each payment is worth more than at 0%: ä at −5% exceeds ä at 0% (v > 1)
+    (low,), = _benefits(_post(client, [{"type": "life-annuity", "term": 5}],
+                              interest={"rate": -0.05}))
+    (zero,), = _benefits(_post(client, [{"type": "life-annuity", "term": 5}],
+                               interest={"rate": 0.0}))
+    assert zero["value"] < low["value"] < 5.0 / 0.95**4
     # an escalation near −1: the first payment only
     (b,), = _benefits(_post(client, [{"type": "life-annuity", "escalation": -0.999999}]))
     assert b["value"] == pytest.approx(1.0, rel=1e-5)

@@ -71,11 +71,11 @@ def test_improved_and_stored_id_base(client):
         ({"type": "adjusted", "base": "no-such-basis", "force_multiplier": 2}, [{"age": 60}], 404, "unknown-basis", "$.basis"),
         ({"type": "adjusted", "base": G, "q_multiplier": 2}, [{"age": 60}], 422, "outside-domain", "$.basis.q_multiplier"),
         ({"type": "adjusted", "base": G, "extra_force": -0.01}, [{"age": 60}], 422, "outside-domain", "$.basis.extra_force"),
-        ({"type": "adjusted", "base": {"type": "gompertz", "B": 1e-5, "c": 0.9}, "force_multiplier": 2}, [{"age": 60}], 400, "invalid-request", "$.basis.base.c"),
+        ({"type": "adjusted", "base": {"type": "gompertz", "B": 1e-5, "c": 0.9}, "force_multiplier": 2}, [{"age": 60}], 422, "outside-domain", "$.basis.base.c"),
         ({"type": "joint-life", "members": [G, G]}, [{"ages": [60, 50, 40]}], 422, "outside-domain", "$.lives[0].ages"),
         ({"type": "joint-life", "members": [G, G]}, [{"age": 60}], 422, "outside-domain", "$.lives[0].age"),
         (G, [{"ages": [60, 50]}], 422, "outside-domain", "$.lives[0].ages"),
-        ({"type": "last-survivor", "members": [G, {"type": "table", "start_age": 0, "q": [0.1, 2], "fractional_ages": "udd"}]}, [{"ages": [1, 1]}], 400, "invalid-request", "$.basis.members[1].q[1]"),
+        ({"type": "last-survivor", "members": [G, {"type": "table", "start_age": 0, "q": [0.1, 2], "fractional_ages": "udd"}]}, [{"ages": [1, 1]}], 422, "outside-domain", "$.basis.members[1].q[1]"),
         ({"type": "improved", "base": "thistlemoor-2024-male", "base_year": 2024, "valuation_year": 2025, "rates_by_year": {"start_age": 0, "start_year": 2025, "grid": [[0.01, 0.02], [0.01]]}}, [{"age": 60}], 422, "outside-domain", "$.basis.rates_by_year.grid[1]"),
         ({"type": "improved", "base": G, "base_year": 2024, "valuation_year": 2025, "rates": {"start_age": 0, "values": [0.01]}}, [{"age": 60}], 422, "outside-domain", "$.basis.base"),
         ({"type": "adjusted", "base": {"type": "joint-life", "members": [G, G]}, "force_multiplier": 2}, [{"age": 60}], 422, "outside-domain", "$.basis.base"),
@@ -223,6 +223,6 @@ def test_status_life_table_errors(client, assert_problem, body, field):
 
 def test_status_life_table_schema_errors(client, assert_problem):
     r = _post(client, "/v1/life-table", {"basis": JOINT, "start_ages": [65], "end_age": 70})
-    assert_problem(r, 400, "invalid-request", ["$.start_ages"])
+    assert_problem(r, 422, "outside-domain", ["$.start_ages"])
     r = _post(client, "/v1/life-table", {"basis": JOINT, "start_ages": [65, -1], "end_age": 70})
-    assert_problem(r, 400, "invalid-request", ["$.start_ages[1]"])
+    assert_problem(r, 422, "outside-domain", ["$.start_ages[1]"])

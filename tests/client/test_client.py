@@ -228,7 +228,8 @@ def test_a_request_off_the_schema_is_refused_before_sending(service):
 def test_refused_before_sending_in_the_words_the_service_answers(service, method, body):
     path = "/v1/" + method.replace("_", "-")
     answered = httpx.post(f"{service.url}{path}", json=body, timeout=10)
-    assert answered.status_code == 400
+    # off the schema is a 400; a value of the right type outside its bounds (order 9) a 422
+    assert answered.status_code == (422 if method == "moments" else 400)
     problem = answered.json()
     with LifetimeClient(service.url, retries=0) as client:
         with pytest.raises(LifetimeServiceError) as caught:
@@ -239,6 +240,14 @@ def test_refused_before_sending_in_the_words_the_service_answers(service, method
         problem["title"], problem["detail"], problem["type"]
     )
     assert error.errors == [(e["field"], e["message"]) for e in problem["errors"]]
+
+
+def test_the_client_uses_the_service_s_titles():
+    from service.api.problems import PROBLEM_KINDS as PROBLEMS
+    from service.client import INVALID_REQUEST_TITLE, OUTSIDE_DOMAIN_TITLE
+
+    assert PROBLEMS["invalid-request"][1] == INVALID_REQUEST_TITLE
+    assert PROBLEMS["outside-domain"][1] == OUTSIDE_DOMAIN_TITLE
 
 
 def test_every_method_has_explicit_typed_parameters_and_the_constructor_shows_its_limits():

@@ -10,6 +10,7 @@ closing table, common practice); RFC 9110 §12.4.2 and §12.5.1 define quality v
 from __future__ import annotations
 
 import json
+import math
 
 import pytest
 
@@ -161,3 +162,54 @@ def test_an_accept_that_rules_out_every_offer_is_a_406(client, accept):
     r = client.post("/v1/life-table", json=LIFE_TABLE, headers={"accept": accept})
     assert r.status_code == 406, r.text
     assert "application/json or text/csv" in r.json()["detail"]
+
+
+def _values(client, interest, benefit, basis="standard-ultimate", age=60):
+    body = {"basis": basis, "lives": [{"age": age}], "interest": interest, "benefits": [benefit]}
+    return client.post("/v1/present-values", json=body)
+
+
+@pytest.mark.parametrize(
+    "interest, field",
+    [
+        ({"rate": -0.99}, "$.interest.rate"),
+        ({"rate": -0.0500001}, "$.interest.rate"),
+        ({"rate": 1.0000001}, "$.interest.rate"),
+        ({"spot_rates": [0.02, -0.99]}, "$.interest.spot_rates[1]"),
+    ],
+)
+@pytest.mark.parametrize(
+    "benefit",
+    [
+        {"type": "endowment", "term": 100},
+        {"type": "pure-endowment", "term": 100},
+        {"type": "life-annuity", "frequency": 12, "approximation": "woolhouse"},
+    ],
+    ids=lambda b: b["type"],
+)
+def test_a_rate_outside_the_domain_is_a_422_naming_it(client, interest, field, benefit):
+    answer = problem(_values(client, interest, benefit), 422, [field])
+    message = answer["errors"][0]["message"]
+    assert "at least -0.05" in message or "at most 1" in message, message
+
+
+@pytest.mark.parametrize("rate", [-0.05, 1.0])
+def test_a_pure_endowment_at_the_edges_of_the_domain(client, rate):
+    # ₙE_x = vⁿ ₙp_x (the textbook definition), with ₙp_x of a Gompertz law in closed form,
+    # exp(−B cˣ (cⁿ − 1) / ln c)
+    b, c, x, n = 3e-5, 1.1, 40.0, 100.0
+    basis = {"type": "gompertz", "B": b, "c": c}
+    r = _values(client, {"rate": rate}, {"type": "pure-endowment", "term": n}, basis, x)
+    assert r.status_code == 200, r.text
+    result = r.json()["results"][0]["benefits"][0]
+    survival = math.exp(-b * c**x * (c**n - 1.0) / math.log(c))
+    assert result["value"] == pytest.approx((1.0 + rate) ** -n * survival, rel=1e-12)
+    assert result["second_moment"] == pytest.approx((1.0 + rate) ** (-2 * n) * survival, rel=1e-12)
+
+
+def test_a_present_value_past_the_largest_double_is_a_422_not_an_overflow(client):
+    # at −5% over 10,000 years with almost no mortality, E[Z²] = v²ⁿ ₙp ≈ e^1026 > 1.8e308
+    r = _values(client, {"rate": -0.05}, {"type": "pure-endowment", "term": 10_000},
+                {"type": "constant-force", "mu": 1e-6})
+    answer = problem(r, 422, ["$.interest"])
+    assert "1.8e308" in answer["errors"][0]["message"]
