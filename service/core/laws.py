@@ -22,6 +22,7 @@ from .lifetime import (
     GL_NODES,
     GL_WEIGHTS,
     MAX_HORIZON,
+    MAX_ORDER,
     N_MOM,
     LifetimeModel,
     Located,
@@ -402,14 +403,17 @@ class DeMoivre(Law):
         return LifetimeModel.expectation_summary(self, age, duration, term)
 
     def complete_moments(self, age, duration, orders, term=None):
-        """T_x/(ω − x) is Beta(1, α): E[T^k] = (ω − x)^k k! Γ(α + 1)/Γ(α + k + 1).
+        """T_x/(ω − x) is Beta(1, α): E[T^k] = (ω − x)^k k! Γ(α + 1)/Γ(α + k + 1), the ratio
+        of gamma functions as the product 1/((α + 1)…(α + k)), which stays finite for every α
+        (a difference of log-gamma values is inf − inf once α is near the largest double).
 
         The temporary moments E[min(T, n)^k] come from the generic path."""
         if term is not None:
             return super().complete_moments(age, duration, orders, term)
         orders = _orders(orders)
         m = self.omega - as_float_array(age)
-        log_coef = gammaln(orders + 1.0) + gammaln(self.alpha + 1.0) - gammaln(self.alpha + orders + 1.0)
+        log_rising = np.cumsum(np.log(self.alpha + np.arange(1.0, MAX_ORDER + 1.0)))
+        log_coef = gammaln(orders + 1.0) - log_rising[orders - 1]
         return m[:, None] ** orders[None, :] * np.exp(log_coef)[None, :]
 
     def complete_quantiles(self, age, duration, probabilities):

@@ -358,7 +358,9 @@ class LifetimeModel(ABC):
             q_col = self.death(ages, durations, [1.0])[:, 0]
             complete = self.complete_expectation(ages, durations)
             curtate = self.curtate_expectation(ages, durations)
-        d_col = l_col[:-1] * q_col  # d = l q, free of the rounding in l_x − l_{x+1}
+        # d = l q, free of the rounding in l_x − l_{x+1}; once l is 0 no one is left to die,
+        # so d is 0 even where q (conditional on a survivor) does not exist
+        d_col = np.where(l_col[:-1] == 0.0, 0.0, l_col[:-1] * q_col)
         return {
             "age": ages,
             "l": l_col[:-1],
@@ -703,6 +705,9 @@ class YearGridModel(LifetimeModel):
                 self.lam[r, np.minimum(j1, n_years)] - self.lam[r, first_end],
                 0.0,
             )  # no whole years between: 0, not inf − inf at a closing year
+            # a row closed before the first whole age (lam infinite at both ends): no one
+            # survives to t1, which is past that age, so the hazard is infinite, not inf − inf
+            middle = np.where(np.isnan(middle), np.inf, middle)
             last = self._year_hazard(r, j1c, np.zeros_like(f1), f1)
             out = np.where(j1 == j0, same, same + np.where(j1 > j0 + 0, middle + last, 0.0))
         out = np.where(beyond & ~((j1 == n_years) & (f1 == 0.0)), np.inf, out)

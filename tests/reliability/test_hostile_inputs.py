@@ -213,3 +213,49 @@ def test_a_present_value_past_the_largest_double_is_a_422_not_an_overflow(client
                 {"type": "constant-force", "mu": 1e-6})
     answer = problem(r, 422, ["$.interest"])
     assert "1.8e308" in answer["errors"][0]["message"]
+
+
+IMPROVED_MALE = {"type": "improved", "base": "thistlemoor-2024-male", "base_year": 2024,
+                 "valuation_year": 2030, "rates": {"start_age": 0, "values": [0.015]}}
+
+
+@pytest.mark.parametrize("basis", [
+    IMPROVED_MALE,
+    {**IMPROVED_MALE, "base": "thistlemoor-2024-select"},
+    {"type": "adjusted", "base": "thistlemoor-2024-male", "q_multiplier": 1.02},
+    {"type": "adjusted", "base": "thistlemoor-2024-select", "q_multiplier": 1.02},
+], ids=["improved", "improved-select", "q-multiplier", "q-multiplier-select"])
+def test_no_null_where_a_value_exists_in_the_closing_year(client, basis):
+    # the tables close with q = 1 in the year from 120: a life aged 120.5 dies within 1.5
+    # years for certain, so u|1.5q is 1 at u = 0 and 0 for u ≥ 0.5 (the definition of a
+    # closing table, common practice)
+    life = {"age": 120.5, "duration": 5}
+    body = {"basis": basis, "lives": [life], "deferral": [0, 0.5, 2.5, 10], "period": 1.5}
+    r = client.post("/v1/deferred-death", json=body)
+    assert r.status_code == 200, r.text
+    assert r.json()["results"][0]["probability"] == [1.0, 0.0, 0.0, 0.0]
+    r = client.post("/v1/survival", json={"basis": basis, "lives": [life], "t": [1.5, 2.5, 1e3]})
+    assert r.json()["results"][0]["survival"] == [0.0, 0.0, 0.0]
+
+
+def test_generalised_de_moivre_with_a_huge_alpha_has_a_finite_expectation(client):
+    # T_x/(ω − x) is Beta(1, α), so e̊_x = (ω − x)/(α + 1) (a textbook property of the law)
+    basis = {"type": "generalised-de-moivre", "omega": 100, "alpha": 1e308}
+    r = client.post("/v1/expectation", json={"basis": basis, "lives": [{"age": 0.6}]})
+    assert r.status_code == 200, r.text
+    result = r.json()["results"][0]
+    assert result["complete"] == pytest.approx(99.4 / 1e308, rel=1e-12)
+    assert result["complete_variance"] is not None
+
+
+def test_a_status_life_table_has_no_deaths_after_certain_death(client):
+    # a common shock of force 500 leaves essentially no survivor after a year: l falls to 0,
+    # and d = 0 once there is no one left to die (q, conditional on a survivor, is null)
+    basis = {"type": "joint-life", "members": ["thistlemoor-2024-male", "thistlemoor-2024-female"],
+             "common_shock_force": 500}
+    r = client.post("/v1/life-table", json={"basis": basis, "start_ages": [60, 60], "end_age": 64})
+    assert r.status_code == 200, r.text
+    result = r.json()["results"][0]
+    assert result["l"][2:] == [0.0, 0.0, 0.0]
+    assert result["d"][2:] == [0.0, 0.0, 0.0]
+    assert all(d is not None for d in result["d"])
