@@ -29,7 +29,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         import uvicorn
 
         from service.api.app import create_app
-        from service.api.protocol import ProblemH11Protocol
+        from service.api.protocol import configure as configure_protocol
     except ImportError as exc:  # the client alone is installed, without the server extra
         print(
             f"{PROGRAM}: cannot start: {exc.name} is not installed; the service needs the "
@@ -57,7 +57,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         access_log=False,  # the service writes its own access log lines
         server_header=False,
         proxy_headers=False,
-        http=ProblemH11Protocol,  # its own 400s as problem+json (api/protocol.py)
+        **configure_protocol(settings.max_header_bytes, settings.request_timeout),
     )
     # uvicorn stops gracefully on SIGTERM (in-flight requests finish), then restores the
     # handler it found and raises the signal again: this handler makes that a clean exit 0

@@ -41,6 +41,10 @@ class Settings(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=
     """Largest request body accepted, in bytes."""
     cache_size: Annotated[int, Meta(ge=0, le=1_000_000)] = 256
     """How many compiled inline bases to keep (least recently used are dropped)."""
+    max_header_bytes: Annotated[int, Meta(ge=1024, le=1_048_576)] = 32_768
+    """Largest request line and headers, in bytes (431 beyond)."""
+    request_timeout: Annotated[float, Meta(gt=0, le=3600)] = 10.0
+    """Seconds a client may take to send one whole request, head and body (408 beyond)."""
     log_level: LogLevel = "info"
     """Lowest level of log lines written."""
     auth_token: (
@@ -69,6 +73,8 @@ _HELP = {
     "max_values": "most values in one answer array (lives times durations)",
     "max_body_bytes": "largest request body in bytes",
     "cache_size": "compiled inline bases kept in memory",
+    "max_header_bytes": "largest request line and headers in bytes",
+    "request_timeout": "seconds a client may take to send one whole request",
     "log_level": "lowest level of log lines: critical, error, warning, info or debug",
     "auth_token": "bearer token required on every request but /health and /ready; at least 16 "
     "printable characters; prefer the environment variable, which process listings do not show",

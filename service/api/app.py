@@ -21,6 +21,7 @@ from .openapi import add_request_bodies, openapi_config
 from .operations import operations_handlers
 from .present_values import present_value_handlers
 from .problems import EXCEPTION_HANDLERS
+from .protocol import configure as configure_protocol
 from .security import cors_config, document_authentication, require_token
 from .value_schemas import REQUEST_TYPES as PRESENT_VALUE_TYPES
 
@@ -91,5 +92,8 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
 
 
 def create_app_from_environment() -> LifetimeApp:
-    """For worker processes started by uvicorn: settings from ``LIFETIME_*`` variables."""
-    return create_app(from_environment())
+    """For worker processes started by uvicorn: settings from ``LIFETIME_*`` variables (the
+    connection limits of this worker too)."""
+    settings = from_environment()
+    configure_protocol(settings.max_header_bytes, settings.request_timeout)
+    return create_app(settings)

@@ -15,7 +15,7 @@ import msgspec
 import numpy as np
 from litestar import Request
 
-from .problems import Problem, from_decode_error, from_validation_error
+from .problems import ClientDisconnected, Problem, from_decode_error, from_validation_error
 
 T = TypeVar("T")
 
@@ -66,12 +66,21 @@ async def read_body(request: Request[Any, Any, Any], max_bytes: int) -> bytes:
         raise _too_large(max_bytes)
     chunks = []
     size = 0
-    async for chunk in request.stream():
+    receive = request.receive
+    while True:
+        # the ASGI messages themselves, so that a client leaving mid-body is told apart
+        # from a failure of the service (litestar's stream() raises a 500 exception there)
+        message = await receive()
+        if message["type"] == "http.disconnect":
+            raise ClientDisconnected(size)
+        chunk = message.get("body", b"")
         size += len(chunk)
         if size > max_bytes:
             raise _too_large(max_bytes)
         chunks.append(chunk)
-    return b"".join(chunks)
+        if not message.get("more_body", False):
+            return b"".join(chunks)
+
 
 
 def _too_large(max_bytes: int) -> Problem:

@@ -78,10 +78,21 @@ PROBLEM_KINDS: dict[str, tuple[int, str, str]] = {
         "A request header does not have the syntax HTTP gives it (RFC 9110); the detail "
         "names the header and what is wrong.",
     ),
+    "request-timeout": (
+        408,
+        "Request not received in time",
+        "The request did not arrive in full within the request_timeout setting; the "
+        "connection was closed.",
+    ),
     "body-too-large": (
         413,
         "Body too large",
         "The request body is larger than the service accepts (the max_body_bytes setting).",
+    ),
+    "headers-too-large": (
+        431,
+        "Request headers too large",
+        "The request line and headers are larger than the max_header_bytes setting.",
     ),
     "unsupported-media-type": (
         415,
@@ -249,6 +260,32 @@ def handle_not_ready(request: Request, exc: CatalogueNotReadyError) -> Response[
     return render(Problem("not-ready", "the service is still loading its stored bases"))
 
 
+class ClientDisconnected(Exception):
+    """The client went away before sending the whole body: nobody is left to answer."""
+
+    def __init__(self, received: int):
+        super().__init__(f"client disconnected after {received} bytes of the body")
+        self.received = received
+
+
+#: the status recorded (in metrics and the access log) for a request whose client left before
+#: it was read; no answer is sent, as there is no one to receive it (nginx's convention)
+CLIENT_CLOSED_REQUEST = 499
+
+
+def handle_client_disconnected(request: Request, exc: ClientDisconnected) -> Response[Any]:
+    """Not an error of the service: an info line, and a 499 in metrics and the access log."""
+    request_id = request.scope.get("state", {}).get("request_id", "")
+    log.info(
+        "client disconnected before sending the whole body of %s %s (request id %s): %s",
+        request.method,
+        request.url.path,
+        request_id,
+        exc,
+    )
+    return Response(b"", status_code=CLIENT_CLOSED_REQUEST, media_type="text/plain")
+
+
 def handle_unexpected(request: Request, exc: Exception) -> Response[Any]:
     """Anything else: a 500 that says nothing of the internals; the log has the details."""
     request_id = request.scope.get("state", {}).get("request_id", "")
@@ -274,5 +311,6 @@ EXCEPTION_HANDLERS = {
     UnknownBasisError: handle_unknown_basis,
     UnknownBasisVersionError: handle_unknown_version,
     CatalogueNotReadyError: handle_not_ready,
+    ClientDisconnected: handle_client_disconnected,
     Exception: handle_unexpected,
 }
