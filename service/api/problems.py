@@ -273,29 +273,23 @@ class ClientDisconnected(Exception):
 CLIENT_CLOSED_REQUEST = 499
 
 
+def _log_request(request: Request, level: int, what: str, **extra: Any) -> str:
+    """One log line about a request (method, path, request id); the request id."""
+    request_id = request.scope.get("state", {}).get("request_id", "")
+    log.log(level, "%s %s %s (request id %s)", what, request.method, request.url.path,
+            request_id, **extra)
+    return request_id
+
+
 def handle_client_disconnected(request: Request, exc: ClientDisconnected) -> Response[Any]:
     """Not an error of the service: an info line, and a 499 in metrics and the access log."""
-    request_id = request.scope.get("state", {}).get("request_id", "")
-    log.info(
-        "client disconnected before sending the whole body of %s %s (request id %s): %s",
-        request.method,
-        request.url.path,
-        request_id,
-        exc,
-    )
+    _log_request(request, logging.INFO, f"{exc}: client disconnected during")
     return Response(b"", status_code=CLIENT_CLOSED_REQUEST, media_type="text/plain")
 
 
 def handle_unexpected(request: Request, exc: Exception) -> Response[Any]:
     """Anything else: a 500 that says nothing of the internals; the log has the details."""
-    request_id = request.scope.get("state", {}).get("request_id", "")
-    log.error(
-        "unexpected error answering %s %s (request id %s)",
-        request.method,
-        request.url.path,
-        request_id,
-        exc_info=exc,
-    )
+    request_id = _log_request(request, logging.ERROR, "unexpected error answering", exc_info=exc)
     return render(
         Problem(
             "internal-error",
