@@ -42,7 +42,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
     configure_logging(settings.log_level)
     folder = Path(settings.bases_dir) if settings.bases_dir else None
-    catalogue = Catalogue(folder, settings.cache_size)
+    catalogue = Catalogue(folder, settings.cache_size, settings.cache_bytes)
     try:
         catalogue.load()
     except BasisFileError as exc:

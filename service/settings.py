@@ -41,6 +41,9 @@ class Settings(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=
     """Largest request body accepted, in bytes."""
     cache_size: Annotated[int, Meta(ge=0, le=1_000_000)] = 256
     """How many compiled inline bases to keep (least recently used are dropped)."""
+    cache_bytes: Annotated[int, Meta(ge=1_048_576, le=2**40)] = 134_217_728
+    """Most memory the compiled inline bases kept may take, in bytes (least recently used are
+    dropped first); an inline basis whose compiled form alone is larger is refused (422)."""
     max_header_bytes: Annotated[int, Meta(ge=1024, le=1_048_576)] = 32_768
     """Largest request line and headers, in bytes (431 beyond)."""
     request_timeout: Annotated[float, Meta(gt=0, le=3600)] = 10.0
@@ -73,6 +76,7 @@ _HELP = {
     "max_values": "most values in one answer array (lives times durations)",
     "max_body_bytes": "largest request body in bytes",
     "cache_size": "compiled inline bases kept in memory",
+    "cache_bytes": "most memory in bytes for the compiled inline bases kept",
     "max_header_bytes": "largest request line and headers in bytes",
     "request_timeout": "seconds a client may take to send one whole request",
     "log_level": "lowest level of log lines: critical, error, warning, info or debug",

@@ -54,7 +54,7 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
     settings = settings or Settings()
     if catalogue is None:
         folder = Path(settings.bases_dir) if settings.bases_dir else None
-        catalogue = Catalogue(folder, settings.cache_size)
+        catalogue = Catalogue(folder, settings.cache_size, settings.cache_bytes)
     metrics = Metrics(catalogue)
     app = LifetimeApp(
         route_handlers=[

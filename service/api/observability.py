@@ -76,6 +76,11 @@ class _CatalogueCollector(Collector):
         size = GaugeMetricFamily("lifetime_basis_cache_size", "Compiled inline bases kept.")
         size.add_metric([], len(cache))
         yield size
+        size_bytes = GaugeMetricFamily(
+            "lifetime_basis_cache_bytes", "Memory taken by the compiled inline bases kept."
+        )
+        size_bytes.add_metric([], cache.bytes)
+        yield size_bytes
         capacity = GaugeMetricFamily(
             "lifetime_basis_cache_capacity", "Most compiled inline bases kept."
         )

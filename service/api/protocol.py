@@ -112,8 +112,7 @@ class ProblemH11Protocol(H11Protocol):
             self._start_request_timer()  # the first bytes of a further request
         self._unset_keepalive_if_required()
         self.conn.receive_data(data)
-        head_bytes = len(self.conn.trailing_data[0])
-        if self.conn.their_state is h11.IDLE and head_bytes > self.max_header_bytes:
+        if self.conn.their_state is h11.IDLE and self._head_too_large():
             detail = (
                 f"the request line and headers are larger than {self.max_header_bytes} bytes "
                 f"(the max_header_bytes setting)"
@@ -123,6 +122,13 @@ class ProblemH11Protocol(H11Protocol):
         self.handle_events()
         if self.conn.their_state is h11.DONE:
             self._stop_request_timer()
+
+    def _head_too_large(self) -> bool:
+        """Whether the request head being received (not yet parsed) passes the limit: more
+        bytes than the limit have arrived and the head's blank line is not among them."""
+        buffered = self.conn.trailing_data[0]
+        limit = self.max_header_bytes
+        return len(buffered) > limit and b"\r\n\r\n" not in buffered[: limit + 4]
 
     # ---- answers written by the protocol itself
 

@@ -44,13 +44,14 @@ import msgspec
 import pandas as pd
 from msgspec import Meta
 
-from service.core.errors import DomainError
+from service.core.errors import ComputationLimitError, DomainError
 from service.core.lifetime import LifetimeModel
 
 from .cache import ModelCache
 from .compile import build_model
 from .definitions import Basis, BasisDefinition, kind_of
 from .fingerprint import fingerprint
+from .size import compiled_bytes, estimated_bytes
 from .validation import field_error
 
 #: The folder of the bases shipped with the service.
@@ -348,13 +349,22 @@ def load_versions(folder: Path, current: Iterable[StoredBasis]) -> dict[str, lis
 
 # ---- the catalogue ---------------------------------------------------------------------------
 
+#: the default bound on the memory of the compiled inline bases kept (the cache_bytes setting)
+DEFAULT_CACHE_BYTES = 128 * 2**20
+
 
 class Catalogue:
     """The stored bases (always compiled, never evicted) and the cache of inline bases."""
 
-    def __init__(self, folder: Path | None = None, cache_size: int = 256):
+    def __init__(
+        self,
+        folder: Path | None = None,
+        cache_size: int = 256,
+        cache_bytes: int = DEFAULT_CACHE_BYTES,
+    ):
         self.folder = folder if folder is not None else PACKAGED_BASES_DIR
-        self.cache: ModelCache[LifetimeModel] = ModelCache(cache_size)
+        self.cache: ModelCache[LifetimeModel] = ModelCache(cache_size, cache_bytes)
+        self.cache_bytes = cache_bytes
         self._by_id: dict[str, StoredBasis] = {}
         self._by_fingerprint: dict[str, StoredBasis] = {}
         self._earlier: dict[str, list[StoredBasis]] = {}
@@ -431,11 +441,32 @@ class Catalogue:
     def compile_inline(self, definition: BasisDefinition, fp: str) -> ResolvedBasis:
         """Compile an inline basis that ``lookup`` did not find, and keep it in the cache.
 
-        Raises the core's ``DomainError`` (field relative to the basis).
+        Raises the core's ``DomainError`` (field relative to the basis), and a
+        ``ComputationLimitError`` when its compiled form alone would pass ``cache_bytes``
+        (estimated before compiling, measured after).
         """
+        self._check_size(estimated_bytes(definition, self._stored_bytes), "would take")
         model = build_model(definition, self._resolve_nested)
-        self.cache.put(fp, model)
+        size = compiled_bytes(model)
+        self._check_size(size, "takes")
+        self.cache.put(fp, model, size)
         return ResolvedBasis(None, fp, model)
+
+    def _check_size(self, size: int, verb: str) -> None:
+        if size > self.cache_bytes:
+            raise ComputationLimitError(
+                "",
+                f"compiled, this basis {verb} about {size / 2**20:,.0f} MiB, more than the "
+                f"{self.cache_bytes / 2**20:,.0f} MiB the service keeps for compiled bases "
+                f"(the cache_bytes setting); send a smaller table (fewer selection ages or "
+                f"fewer rates) or store it with the service",
+            )
+
+    def _stored_bytes(self, basis_id: str) -> int:
+        try:
+            return compiled_bytes(self.get(basis_id).model)
+        except UnknownBasisError:
+            return 0  # the compile step names the unknown id
 
     def resolve(self, basis: str | BasisDefinition) -> ResolvedBasis:
         """``lookup`` then, if needed, ``compile_inline``: for callers that may block."""

@@ -1,0 +1,97 @@
+"""How much memory a compiled basis takes: measured after compiling, estimated before.
+
+The cache of compiled inline bases is bounded in bytes (the ``cache_bytes`` setting), so every
+compiled model is measured (:func:`compiled_bytes`: the numpy arrays it holds, each buffer
+once, plus a little for the objects around them); and an inline basis whose compiled form
+alone would pass the bound is refused before it is compiled (:func:`estimated_bytes`, from the
+definition's sizes: a table keeps about ``FLOATS_PER_YEAR`` doubles for every year of every
+row).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+
+from service.core.lifetime import MAX_ORDER, N_MOM
+from service.core.transforms import MAX_IMPROVED_RATES, MAX_IMPROVED_VALUES
+
+from . import definitions as d
+
+#: doubles a compiled table keeps per row and year of age: q, the cumulative hazard, one-year
+#: survival, the per-year moments, the tail moments and the curtate moments
+FLOATS_PER_YEAR = 3 + 2 * N_MOM + MAX_ORDER + 1
+#: a rough allowance for the Python objects of one model (not its arrays)
+OBJECT_BYTES = 2_048
+#: what a law's compiled year grid takes at most (its horizon is at most 10,000 years)
+LAW_BYTES = 10_000 * FLOATS_PER_YEAR * 8
+
+
+def compiled_bytes(model: object) -> int:
+    """The memory held by a compiled model: its arrays' buffers (each once) and objects."""
+    seen: set[int] = set()
+    total = 0
+    stack = [model]
+    while stack:
+        obj = stack.pop()
+        if id(obj) in seen:
+            continue
+        seen.add(id(obj))
+        if isinstance(obj, np.ndarray):
+            owner = obj
+            while isinstance(owner.base, np.ndarray):
+                owner = owner.base
+            if id(owner) not in seen or owner is obj:
+                seen.add(id(owner))
+                total += owner.nbytes
+            continue
+        if isinstance(obj, (list, tuple, set, frozenset)):
+            stack.extend(obj)
+        elif isinstance(obj, dict):
+            stack.extend(obj.values())
+        elif hasattr(obj, "__dict__") and not isinstance(obj, type):
+            total += OBJECT_BYTES
+            stack.extend(vars(obj).values())
+    return total
+
+
+def _table_bytes(rows: int, years: int) -> int:
+    return rows * (years + 1) * FLOATS_PER_YEAR * 8 + OBJECT_BYTES
+
+
+def estimated_bytes(
+    definition: d.BasisDefinition | str, stored_bytes: Callable[[str], int]
+) -> int:
+    """An upper estimate of the memory compiling ``definition`` allocates anew.
+
+    A stored basis is compiled already: it counts only where a transform copies its rates
+    (``stored_bytes`` gives its measured size).
+    """
+    if isinstance(definition, str):
+        return 0
+    if isinstance(definition, d.Table):
+        return _table_bytes(1, len(definition.q))
+    if isinstance(definition, d.SelectTable):
+        period = len(definition.select[0]) if definition.select else 0
+        return _table_bytes(len(definition.select) + 1, period + len(definition.ultimate))
+    if isinstance(definition, d.Adjusted):
+        copies = definition.q_multiplier is not None or definition.extra_q is not None
+        return _copied(definition.base, stored_bytes, copies) + LAW_BYTES
+    if isinstance(definition, d.Improved):
+        # one row per cohort, as long as the longest cohort: at most the core's bound on the
+        # rates an improved table keeps
+        cohorts = MAX_IMPROVED_VALUES // MAX_IMPROVED_RATES
+        return _copied(definition.base, stored_bytes, True) + _table_bytes(
+            cohorts, MAX_IMPROVED_RATES
+        )
+    if isinstance(definition, (d.JointLife, d.LastSurvivor)):
+        return sum(estimated_bytes(m, stored_bytes) for m in definition.members) + LAW_BYTES
+    return LAW_BYTES
+
+
+def _copied(base: d.BasisDefinition | str, stored_bytes: Callable[[str], int], copies: bool) -> int:
+    own = estimated_bytes(base, stored_bytes)
+    if isinstance(base, str):
+        return stored_bytes(base) if copies else 0
+    return own * 2 if copies else own
