@@ -41,6 +41,10 @@ class Settings(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=
     """Largest request body accepted, in bytes."""
     cache_size: Annotated[int, Meta(ge=0, le=1_000_000)] = 256
     """How many compiled inline bases to keep (least recently used are dropped)."""
+    max_request_seconds: Annotated[float, Meta(gt=0, le=3600)] = 2.0
+    """Most computation one request may take, as estimated before it runs from its lives,
+    durations, years, members, ratings and benefits; a request estimated above is refused (422,
+    saying how to split it)."""
     cache_bytes: Annotated[int, Meta(ge=1_048_576, le=2**40)] = 134_217_728
     """Most memory the compiled inline bases kept may take, in bytes (least recently used are
     dropped first); an inline basis whose compiled form alone is larger is refused (422)."""
@@ -76,6 +80,7 @@ _HELP = {
     "max_values": "most values in one answer array (lives times durations)",
     "max_body_bytes": "largest request body in bytes",
     "cache_size": "compiled inline bases kept in memory",
+    "max_request_seconds": "most estimated computation in seconds for one request",
     "cache_bytes": "most memory in bytes for the compiled inline bases kept",
     "max_header_bytes": "largest request line and headers in bytes",
     "request_timeout": "seconds a client may take to send one whole request",

@@ -5,10 +5,14 @@ Each handler takes one straight path: read and decode the body (strict msgspec),
 basis (a stored model, or a cached or freshly compiled inline one), check the lives, make one
 vectorised call per quantity on the core, and build the answer Struct.
 
-Handlers are ``async`` because they read the body themselves. Small requests compute on the
-event loop: a thread hop costs more than the numpy calls. Work above
-``OFFLOAD_VALUES`` values, and every compilation of a new inline basis (milliseconds for a
-law), runs in a worker thread so that the event loop keeps answering other requests.
+Handlers are ``async`` because they read the body themselves. Before computing, each handler
+estimates its work from the model's structure (``service.core.work``: lives × durations,
+years, members, nested ratings, benefits). A request estimated above the
+``max_request_seconds`` setting is refused up front (422, saying how many lives to send at
+once); one above ``OFFLOAD_SECONDS`` runs in a worker thread, as does every compilation of a
+new inline basis, so that the event loop keeps answering other requests (``/health`` among
+them); small requests compute on the event loop, where a thread hop would cost more than
+the numpy calls.
 """
 
 from __future__ import annotations
@@ -26,6 +30,7 @@ from litestar import Request, Response, post
 from litestar.openapi.datastructures import ResponseSpec
 
 from service.bases.catalogue import Catalogue, ResolvedBasis
+from service.core import work as cost
 from service.core.errors import DomainError
 from service.settings import Settings
 from service.version import service_version
@@ -40,10 +45,8 @@ from .tabular import CSV_MEDIA_TYPE, cell, results_csv
 
 T = TypeVar("T")
 
-#: lives × durations above which the computation runs in a worker thread
-OFFLOAD_VALUES = 20_000
-#: the weight of one row of a status's life table against OFFLOAD_VALUES
-STATUS_ROW_WORK = 1_000
+#: estimated seconds above which the computation runs in a worker thread
+OFFLOAD_SECONDS = 0.002
 
 CALCULATION_TAG = "calculations"
 
@@ -209,11 +212,48 @@ class Calculations:
             )
         return answer
 
-    @staticmethod
-    async def run(work: Callable[[], T], size: int) -> T:
-        if size > OFFLOAD_VALUES:
+    def check_budget(self, estimate: float, lives: int) -> None:
+        """422 when a request's estimated work is more than one request may take."""
+        budget = self.settings.max_request_seconds
+        if estimate <= budget:
+            return
+        fitting = int(0.9 * lives * budget / estimate)  # with room for the fixed costs
+        if fitting >= 1:
+            raise bad_field(
+                "$.lives",
+                f"this request is estimated at about {estimate:.3g} s of computation, more "
+                f"than the {budget:g} s one request may take (the max_request_seconds "
+                f"setting); split it into requests of at most {fitting} lives on this basis",
+            )
+        raise bad_field(
+            "$.basis",
+            f"even one life is estimated at about {estimate / max(lives, 1):.3g} s of "
+            f"computation on this basis, more than the {budget:g} s one request may take (the "
+            f"max_request_seconds setting); use fewer nested ratings with limited years, "
+            f"fewer members, fewer benefits or durations, or a term",
+        )
+
+    async def run(self, work: Callable[[], T], estimate: float, lives: int) -> T:
+        """``work`` within the budget: refused above it, in a worker thread above
+        ``OFFLOAD_SECONDS``, on the event loop below."""
+        self.check_budget(estimate, lives)
+        if estimate > OFFLOAD_SECONDS:
             return await anyio.to_thread.run_sync(work)
         return work()
+
+
+def _youngest(age: np.ndarray) -> float:
+    """The youngest age of the lives (the first member's, for a status)."""
+    return float(np.min(age)) if age.size else 0.0
+
+
+def _moments_seconds(model: Any, age: np.ndarray, term: int | None, calls: int) -> float:
+    span = cost.years(model, _youngest(age))
+    if term is not None:
+        span = min(span, float(term))
+    per_life = cost.integral_evaluations(model, span)
+    return cost.seconds(model, age.shape[0], per_life, calls=calls,
+                        output_values=4 * age.shape[0])
 
 
 def _echo_columns(age: np.ndarray, duration: np.ndarray) -> tuple[Iterable, ...]:
@@ -246,7 +286,9 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         def work():
             return model.survival_summary(age, duration, t)
 
-        surv, death, force, density = await calc.run(work, age.size * t.size)
+        estimate = cost.seconds(model, len(req.lives), 3.0 * t.size, needs_horizon=False,
+                                pointwise=True, output_values=4 * age.shape[0] * t.size)
+        surv, death, force, density = await calc.run(work, estimate, len(req.lives))
         results = [
             s.SurvivalResult(
                 age=a, duration=d, ages=aa, durations=dd,
@@ -274,8 +316,10 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
         u = calc.durations(req.deferral, "$.deferral", age.size)
         model, period = basis.model, req.period
+        estimate = cost.seconds(model, len(req.lives), 2.0 * u.size, needs_horizon=False,
+                                pointwise=True, output_values=age.shape[0] * u.size)
         values = await calc.run(
-            lambda: model.deferred_death(age, duration, u, period), age.size * u.size
+            lambda: model.deferred_death(age, duration, u, period), estimate, len(req.lives)
         )
         results = [
             s.DeferredDeathResult(age=a, duration=d, ages=aa, durations=dd, probability=p)
@@ -295,7 +339,10 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         def work():
             return model.expectation_summary(age, duration, term)
 
-        complete, curtate, complete_var, curtate_var = await calc.run(work, age.size)
+        estimate = _moments_seconds(model, age, term, 2)
+        complete, curtate, complete_var, curtate_var = await calc.run(
+            work, estimate, len(req.lives)
+        )
         results = [
             s.ExpectationResult(
                 age=a,
@@ -340,7 +387,8 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 model.curtate_moments(age, duration, orders, term),
             )
 
-        complete, curtate = await calc.run(work, age.size * len(orders))
+        estimate = _moments_seconds(model, age, term, 2)
+        complete, curtate = await calc.run(work, estimate, len(req.lives))
         results = [
             s.MomentsResult(age=a, duration=d, ages=aa, durations=dd, complete=c1, curtate=c2)
             for a, d, aa, dd, c1, c2 in zip(
@@ -366,7 +414,10 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 model.curtate_quantiles(age, duration, p),
             )
 
-        complete, curtate = await calc.run(work, age.size * p.size)
+        per_life = cost.quantile_evaluations(model, cost.years(model, _youngest(age)), p.size)
+        estimate = cost.seconds(model, len(req.lives), per_life, calls=cost.quantile_calls(model),
+                                output_values=2 * age.shape[0] * p.size)
+        complete, curtate = await calc.run(work, estimate, len(req.lives))
         results = [
             s.QuantilesResult(age=a, duration=d, ages=aa, durations=dd, complete=c1, curtate=c2)
             for a, d, aa, dd, c1, c2 in zip(
@@ -408,11 +459,16 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 f"{req.end_age} gives {rows})",
             )
         model = basis.model
-        # a status's rows come from quadrature across its members, far more work than a lookup
-        work = rows * (STATUS_ROW_WORK if several else 10)
+        # a status's rows come from quadrature across its members once; a single life's rows
+        # are one life each
+        span = cost.years(model, first)
+        estimate = cost.seconds(
+            model, 1 if several else rows, cost.integral_evaluations(model, span), calls=4
+        )
         try:
             table = await calc.run(
-                lambda: model.life_table(start, req.end_age, req.radix, duration), work
+                lambda: model.life_table(start, req.end_age, req.radix, duration), estimate,
+                1 if several else rows,
             )
         except DomainError as exc:
             raise _life_table_problem(exc) from None

@@ -99,10 +99,10 @@ def cash_flow_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         basis = await calc.basis(request, req.basis)
         age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
         items = quote_items(req)
-        work = check_work(age, duration, basis, discount, items, 2)
+        estimate = check_work(age, basis, discount, items, 2)
         model, m = basis.model, req.periods_per_year
         found = await calc.run(lambda: _flows(model, age, duration, discount, items, m),
-                               work // 20)
+                               estimate, age.shape[0])
         calc.check_size(age.shape[0] * found[0].start.size * len(items), "$.periods_per_year")
         start, end = found[0].start.tolist(), found[0].end.tolist()
         in_force = found[0].in_force

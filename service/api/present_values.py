@@ -19,6 +19,7 @@ from litestar import Request, post
 
 from service.bases.catalogue import Catalogue
 from service.core import values as pv
+from service.core import work as cost
 from service.core.errors import DomainError
 from service.core.quote import QuoteItem, quote
 from service.core.sensitivities import Sensitivity
@@ -45,6 +46,11 @@ from .value_schemas import (
 )
 
 _DECODER = msgspec.json.Decoder(PresentValuesRequest)
+
+
+def _continuous(b) -> bool:
+    """A benefit valued by quadrature (continuous annuity, moment-of-death insurance)."""
+    return getattr(b, "timing", "") in ("continuous", "moment-of-death")
 
 
 def discount_of(interest: Interest) -> pv.Discount:
@@ -120,21 +126,39 @@ def _finite_list(values) -> list | None:
     return None if values is None else [_finite(v) for v in values]
 
 
-def check_work(age: np.ndarray, duration: np.ndarray, basis, discount: pv.Discount,
-               items: list[QuoteItem], repeats: int = 1) -> int:
-    """Lives × payment times (summed over benefits, times ``repeats`` valuations); a 422 when
-    it exceeds MAX_WORK."""
-    horizon = float(np.max(basis.model.horizon(age, duration)))
-    horizon = min(horizon, discount.negligible_after())
-    per_life = sum(pv.payment_count(it.benefit, horizon) + len(it.durations or ()) for it in items)
-    work = age.shape[0] * per_life * repeats
+def check_work(age: np.ndarray, basis, discount: pv.Discount, items: list[QuoteItem],
+               repeats: int = 1) -> float:
+    """The estimated seconds of valuing ``items`` for these lives ``repeats`` times
+    (service.core.work); a 422 when lives × payment times exceed MAX_WORK.
+
+    The horizon is bounded from the model's structure, not searched for: a search is work
+    for the worker thread, and this runs before deciding whether to offload."""
+    model = basis.model
+    horizon = min(cost.years(model, float(np.min(age)) if age.size else 0.0),
+                  discount.negligible_after())
+    lives = age.shape[0]
+    # a policy value at each duration is one more valuation of what remains of the benefit
+    counts = [(pv.payment_count(it.benefit, horizon), 1 + len(it.durations or ()), it)
+              for it in items]
+    work = lives * sum(n + v - 1 for n, v, _ in counts) * repeats
     if work > MAX_WORK:
         raise bad_field(
             "$.benefits",
             f"lives times payment times would be about {work:,}; at most {MAX_WORK:,} are "
             "computed in one request, so split it",
         )
-    return work
+    # discrete payments are evaluations at scattered times; continuous benefits are
+    # integrals on panels, like the moments; a net premium adds the premium annuity
+    discrete = sum(n * v for n, v, it in counts if not _continuous(it.benefit))
+    continuous = sum(
+        n * v * cost.NODES * cost.kink_families(model) / 2.0
+        for n, v, it in counts if _continuous(it.benefit)
+    ) + cost.integral_evaluations(model, horizon) * sum(it.premiums is not False for it in items)
+    once = cost.seconds(
+        model, lives, discrete, calls=4 * len(items), pointwise=True,
+        output_values=3 * lives * len(items),
+    ) + cost.seconds(model, lives, continuous, needs_horizon=False, calls=0)
+    return once * repeats
 
 
 def _sensitivity_result(shocks, k: int, i: int) -> BenefitSensitivities | None:
@@ -182,10 +206,10 @@ def present_value_handlers(settings: Settings, catalogue: Catalogue) -> list[Any
         items = quote_items(req)
         ask = _sensitivity(req)
         repeats = 1 if ask is None else 1 + (ask.kind is not None) + 2 * (ask.shift is not None)
-        work = check_work(age, duration, basis, discount, items, repeats)
+        estimate = check_work(age, basis, discount, items, repeats)
         model = basis.model
         found = await calc.run(
-            lambda: quote(model, age, duration, discount, items, ask), work // 20
+            lambda: quote(model, age, duration, discount, items, ask), estimate, age.shape[0]
         )
         per_benefit = [
             (r.value.tolist(), r.second_moment.tolist(), r.standard_deviation.tolist(),

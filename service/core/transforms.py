@@ -210,18 +210,26 @@ class ForceAdjusted(GenericModel):
     def _oldest_age(self) -> float:
         """Laws keep a grid of whole ages: the oldest age from which the adjusted survival to
         the end of the base's grid is still negligible."""
+        # a search on 63 ages at once, 10 times: the bracket narrows 64-fold a round, as far
+        # as 60 halvings would, in vectorised calls (a nested rating's horizon is itself a
+        # search, so scalar bisection costs grow with the nesting)
         lo, hi = 0.0, float(self.base.max_age)
-        for _ in range(60):
-            mid = 0.5 * (lo + hi)
-            a = np.array([[mid]])
-            d = np.zeros_like(a)
-            h_end = self.base.horizon(np.array([mid]), np.zeros(1))[0] + 1.0
+        steps = np.arange(1, 64, dtype=float) / 64.0
+        for _ in range(10):
+            ages = lo + (hi - lo) * steps
+            h_end = self.base.horizon(ages, np.zeros_like(ages)) + 1.0
             with np.errstate(all="ignore"):
-                h = self.span_hazard(a, d, np.zeros((1, 1)), np.array([[h_end]]))[0, 0]
-            if h >= NEGLIGIBLE_HAZARD or not math.isfinite(h):
-                lo = mid
-            else:
-                hi = mid
+                h = self.span_hazard(ages[:, None], np.zeros((ages.size, 1)),
+                                     np.zeros((ages.size, 1)), h_end[:, None])[:, 0]
+            negligible = (h >= NEGLIGIBLE_HAZARD) | ~np.isfinite(h)
+            below = np.flatnonzero(negligible)
+            above = np.flatnonzero(~negligible)
+            new_lo = float(ages[below[-1]]) if below.size else lo
+            new_hi = float(ages[above[0]]) if above.size else hi
+            if new_hi <= new_lo or (new_lo, new_hi) == (lo, hi):
+                lo = new_lo
+                break
+            lo, hi = new_lo, new_hi
         if lo <= 0.0:
             raise ComputationLimitError(
                 "force_multiplier",
