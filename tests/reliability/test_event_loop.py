@@ -11,12 +11,9 @@ from __future__ import annotations
 import statistics
 import threading
 import time
-from collections.abc import Iterator
 
 import httpx
 import pytest
-
-from .server import Server, start_server
 
 MALE, FEMALE = "thistlemoor-2024-male", "thistlemoor-2024-female"
 GOMPERTZ = {"type": "gompertz", "B": 3e-5, "c": 1.1}
@@ -44,15 +41,6 @@ HEAVY = [
                             "benefits": [{"type": "life-insurance", "timing": "moment-of-death"}]},
      "$.lives"),
 ]
-
-
-@pytest.fixture(scope="module")
-def server(tmp_path_factory) -> Iterator[Server]:
-    running = start_server(tmp_path_factory.mktemp("event-loop"))
-    try:
-        yield running
-    finally:
-        running.stop()
 
 
 @pytest.mark.parametrize("path, body, field", HEAVY, ids=["status-8", "force-rated-10000",
