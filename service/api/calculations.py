@@ -31,7 +31,8 @@ from litestar.openapi.datastructures import ResponseSpec
 
 from service.bases.catalogue import Catalogue, ResolvedBasis
 from service.core import work as cost
-from service.core.errors import DomainError
+from service.core.errors import DomainError, fmt
+from service.core.transforms import selects_by_duration
 from service.settings import Settings
 from service.version import service_version
 
@@ -162,6 +163,7 @@ class Calculations:
         else:
             age = np.array(ages, dtype=float)
             duration = np.array([life.duration for life in lives], dtype=float)
+        _check_durations_apply(basis.model, duration)
         age, duration = basis.model.place_lives(age, duration, rule)
         basis.model.check_lives(age, duration)  # DomainError fields are "lives[i].age" …
         return age, duration
@@ -240,6 +242,27 @@ class Calculations:
         if estimate > OFFLOAD_SECONDS:
             return await anyio.to_thread.run_sync(work)
         return work()
+
+
+def _check_durations_apply(model: Any, duration: np.ndarray) -> None:
+    """A duration since selection on a basis (or a member) without a select period would be
+    silently ignored: a 422 instead, naming the first such duration."""
+    members = getattr(model, "members", None)
+    columns = [model] if members is None else members
+    for j, member in enumerate(columns):
+        if selects_by_duration(member):
+            continue
+        given = duration if members is None else duration[:, j]
+        bad = np.flatnonzero(given != 0.0)
+        if bad.size:
+            i = int(bad[0])
+            where = f"$.lives[{i}].duration" if members is None else f"$.lives[{i}].durations[{j}]"
+            whose = "this basis" if members is None else f"member {j} of this basis"
+            raise bad_field(
+                where,
+                f"{whose} has no select period, so a duration since selection does not apply "
+                f"(got {fmt(given[i])}); leave duration out or use a select table",
+            )
 
 
 def _youngest(age: np.ndarray) -> float:

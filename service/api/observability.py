@@ -17,7 +17,7 @@ from collections.abc import Awaitable, Callable, MutableMapping
 from typing import Any
 
 import msgspec
-from prometheus_client import CollectorRegistry, Counter, Histogram
+from prometheus_client import CollectorRegistry, Counter, Gauge, Histogram
 from prometheus_client.core import CounterMetricFamily, GaugeMetricFamily
 from prometheus_client.registry import Collector
 
@@ -51,6 +51,11 @@ class Metrics:
             "Time to answer HTTP requests, by route, method and status.",
             ("route", "method", "status"),
             buckets=(0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10),
+            registry=self.registry,
+        )
+        self.in_progress = Gauge(
+            "lifetime_http_requests_in_progress",
+            "HTTP requests received and not yet answered.",
             registry=self.registry,
         )
         self.registry.register(_CatalogueCollector(catalogue))
@@ -150,9 +155,11 @@ def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
                 message = {**message, "headers": headers}
             await send(message)
 
+        metrics.in_progress.inc()
         try:
             await app(scope, receive, send_with_headers)
         finally:
+            metrics.in_progress.dec()
             elapsed = time.perf_counter() - started
             status = status_holder[0]
             route = scope.get("path_template") or "unmatched"

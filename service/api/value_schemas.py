@@ -10,6 +10,8 @@ from typing import Annotated, Literal, Union
 import msgspec
 from msgspec import Meta
 
+from service.bases.validation import allow, literal_choices
+
 from . import schemas as s
 
 #: most spot rates in a term structure (the core's service.core.values.MAX_SPOT_RATES)
@@ -354,3 +356,15 @@ REQUEST_TYPES: dict[str, type[msgspec.Struct]] = {
     "/v1/present-values": PresentValuesRequest,
     "/v1/cash-flows": CashFlowsRequest,
 }
+
+
+def _name_the_choices() -> None:
+    """Errors for an unknown benefit type or an invalid choice list the allowed values."""
+    kinds = (LifeAnnuityBenefit, LifeInsuranceBenefit, PureEndowmentBenefit, EndowmentBenefit,
+             ReversionaryAnnuityBenefit, ContingentInsuranceBenefit)
+    allow(r"\.benefits\[\d+\]\.type$", ", ".join(str(k.__struct_config__.tag) for k in kinds))
+    for name, allowed in literal_choices(kinds).items():
+        allow(rf"\.benefits\[\d+\]\.{name}$", allowed)
+
+
+_name_the_choices()

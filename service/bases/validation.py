@@ -34,6 +34,42 @@ _BASIS_TYPES = ", ".join(k.__struct_config__.tag for k in BASIS_KINDS)  # type: 
 _FRACTIONAL = "udd, constant-force, balducci"
 
 
+#: (pattern of a JSON path, allowed values) for invalid choices, most specific first; the
+#: modules that declare tagged unions and Literal fields register theirs (``allow``)
+_CHOICES: list[tuple[re.Pattern, str]] = [
+    (re.compile(r"\.fractional_ages$"), _FRACTIONAL),
+    (re.compile(r"(?:^\$\.basis|\.base|\.members\[\d+\]|\.definition)\.type$"), _BASIS_TYPES),
+]
+
+
+def allow(path_pattern: str, allowed: str) -> None:
+    """Name the allowed values of the fields whose JSON path matches ``path_pattern``."""
+    _CHOICES.insert(0, (re.compile(path_pattern), allowed))
+
+
+def literal_choices(structs: tuple[type, ...]) -> dict[str, str]:
+    """field name → its allowed values, from the Literal-typed fields of ``structs`` (for a
+    field of several Structs, each set with the tags of the Structs that take it)."""
+    import typing
+
+    by_field: dict[str, dict[tuple, list[str]]] = {}
+    for struct in structs:
+        hints = typing.get_type_hints(struct, include_extras=True)
+        tag = struct.__struct_config__.tag
+        for name, hint in hints.items():
+            while typing.get_origin(hint) is typing.Annotated:
+                hint = typing.get_args(hint)[0]
+            if typing.get_origin(hint) is typing.Literal:
+                values = tuple(typing.get_args(hint))
+                by_field.setdefault(name, {}).setdefault(values, []).append(str(tag))
+    out = {}
+    for name, groups in by_field.items():
+        parts = [", ".join(values) + (f" ({', '.join(tags)})" if len(groups) > 1 else "")
+                 for values, tags in groups.items()]
+        out[name] = "; ".join(parts)
+    return out
+
+
 def _words(type_text: str) -> str:
     parts = [p.strip() for p in type_text.split("|")]
     return " or ".join(_TYPE_WORDS.get(p, p) for p in parts)
@@ -84,14 +120,16 @@ def field_error(text: str) -> tuple[str, str]:
                 f"must be the id of a stored basis (a string) or an inline basis (an "
                 f"object), got {_words(got)}"
             )
+        if got == "float" and "int" in expected.split(" | "):
+            return path, "must be a whole number (a number with no fractional part)"
         return path, f"must be {_words(expected)}, got {_words(got)}"
     if found := _INVALID_VALUE.match(message):
         value = found.group("value")
-        if path.endswith(".type"):
-            return path, f"unknown basis type {value}; allowed: {_BASIS_TYPES}"
-        if path.endswith(".fractional_ages"):
-            return path, f"invalid value {value}; allowed: {_FRACTIONAL}"
-        return path, f"invalid value {value}"
+        what = "unknown type" if path.endswith(".type") else "invalid value"
+        for pattern, allowed in _CHOICES:
+            if pattern.search(path):
+                return path, f"{what} {value}; allowed: {allowed}"
+        return path, f"{what} {value}"
     if message == "Number out of range":
         return path, "number out of range: must be a finite number"
     return path, message

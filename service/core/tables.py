@@ -401,6 +401,14 @@ class SelectTable(TableSet):
 
     def _check_rows(self, age, duration) -> None:
         sel_age = age - duration
+        bad = np.flatnonzero(~(sel_age >= 0))
+        if bad.size:
+            i = int(bad[0])
+            raise DomainError(
+                f"lives[{i}].duration",
+                f"duration must be at most the age: the life was selected at age − duration, "
+                f"which cannot be negative (got age {fmt(age[i])}, duration {fmt(duration[i])})",
+            )
         in_period = duration < self.select_period
         whole = np.abs(sel_age - np.rint(sel_age)) <= 1e-9
         sel_index = np.rint(sel_age) - self.start_age
@@ -409,8 +417,12 @@ class SelectTable(TableSet):
         if bad.size:
             i = int(bad[0])
             first, last = self.start_age, self.start_age + self.n_select_rows - 1
+            # a life at selection (no duration) whose age is outside the selection ages:
+            # its age is what is wrong; otherwise the duration that places it off the grid
+            outside = not (0 <= sel_index[i] < self.n_select_rows)
+            blamed = "age" if duration[i] == 0.0 and outside else "duration"
             raise DomainError(
-                f"lives[{i}].duration",
+                f"lives[{i}].{blamed}",
                 f"within the {self.select_period}-year select period, age − duration is the age "
                 f"at selection and must be a whole age from {first} to {last} "
                 f"(got age {fmt(age[i])}, duration {fmt(duration[i])})",

@@ -586,3 +586,15 @@ def improved(
     model.limiting_age = float(np.max(model.row_limit))
     model.max_age = model.limiting_age
     return model
+
+
+def selects_by_duration(model: LifetimeModel) -> bool:
+    """Whether the duration since selection changes a life's mortality under ``model`` (a
+    select table, improved or rated); a single-life model only."""
+    if isinstance(model, (SelectTable, SelectCohortTable)):
+        return True
+    if isinstance(model, (Shifted, ForceAdjusted)):
+        return selects_by_duration(model.base)
+    if isinstance(model, Spliced):
+        return selects_by_duration(model.first) or selects_by_duration(model.then)
+    return False

@@ -229,7 +229,7 @@ def test_no_null_where_a_value_exists_in_the_closing_year(client, basis):
     # the tables close with q = 1 in the year from 120: a life aged 120.5 dies within 1.5
     # years for certain, so u|1.5q is 1 at u = 0 and 0 for u ≥ 0.5 (the definition of a
     # closing table, common practice)
-    life = {"age": 120.5, "duration": 5}
+    life = {"age": 120.5, "duration": 5} if "select" in basis["base"] else {"age": 120.5}
     body = {"basis": basis, "lives": [life], "deferral": [0, 0.5, 2.5, 10], "period": 1.5}
     r = client.post("/v1/deferred-death", json=body)
     assert r.status_code == 200, r.text
@@ -259,3 +259,71 @@ def test_a_status_life_table_has_no_deaths_after_certain_death(client):
     assert result["l"][2:] == [0.0, 0.0, 0.0]
     assert result["d"][2:] == [0.0, 0.0, 0.0]
     assert all(d is not None for d in result["d"])
+
+
+@pytest.mark.parametrize("basis, life, field", [
+    ("standard-ultimate", {"age": 60, "duration": 500}, "$.lives[0].duration"),
+    ("thistlemoor-2024-male", {"age": 60, "duration": 1}, "$.lives[0].duration"),
+    ({"type": "adjusted", "base": "thistlemoor-2024-male", "force_multiplier": 1.2},
+     {"age": 60, "duration": 1}, "$.lives[0].duration"),
+    ({"type": "joint-life", "members": ["thistlemoor-2024-select", "thistlemoor-2024-male"]},
+     {"ages": [60, 60], "durations": [1, 2]}, "$.lives[0].durations[1]"),
+])
+def test_a_duration_where_no_select_period_applies_is_refused(client, basis, life, field):
+    r = client.post("/v1/expectation", json={"basis": basis, "lives": [life]})
+    answer = problem(r, 422, [field])
+    assert "no select period" in answer["errors"][0]["message"]
+
+
+def test_a_duration_on_a_select_basis_still_applies(client):
+    r = client.post("/v1/expectation", json={
+        "basis": {"type": "joint-life", "members": ["thistlemoor-2024-select", "thistlemoor-2024-male"]},
+        "lives": [{"ages": [61, 60], "durations": [1, 0]}]})
+    assert r.status_code == 200, r.text
+
+
+def test_a_selection_age_below_zero_is_refused(client):
+    # a life aged 30 cannot have been selected 40 years ago (at age −10)
+    r = client.post("/v1/expectation", json={"basis": "thistlemoor-2024-select",
+                                             "lives": [{"age": 30, "duration": 40}]})
+    answer = problem(r, 422, ["$.lives[0].duration"])
+    assert "cannot be negative" in answer["errors"][0]["message"]
+
+
+def test_an_age_below_the_select_ages_is_blamed_on_the_age(client):
+    r = client.post("/v1/expectation", json={"basis": "thistlemoor-2024-select",
+                                             "lives": [{"age": 1}]})
+    problem(r, 422, ["$.lives[0].age"])
+
+
+PV = {"basis": "standard-ultimate", "lives": [{"age": 60}], "interest": {"rate": 0.03}}
+
+
+@pytest.mark.parametrize("benefit, field, words", [
+    ({"type": "pension"}, "$.benefits[0].type",
+     "life-annuity, life-insurance, pure-endowment, endowment"),
+    ({"type": "life-annuity", "timing": "in-advance"}, "$.benefits[0].timing",
+     "advance, arrears, continuous"),
+    ({"type": "life-insurance", "timing": "at-death"}, "$.benefits[0].timing",
+     "end-of-year, end-of-period, moment-of-death"),
+    ({"type": "life-annuity", "approximation": "simpson"}, "$.benefits[0].approximation",
+     "exact, udd, woolhouse"),
+])
+def test_an_invalid_choice_lists_the_allowed_values(client, benefit, field, words):
+    answer = problem(client.post("/v1/present-values", json={**PV, "benefits": [benefit]}), 400,
+                     [field])
+    message = answer["errors"][0]["message"]
+    assert words in message
+    assert "gompertz" not in message  # not the basis types
+
+
+@pytest.mark.parametrize("term, status, words", [
+    (20000, 422, "at most 10000"),  # a whole number outside its bounds
+    (0, 422, "at least 1"),
+    (10.5, 400, "whole number (a number with no fractional part)"),  # the wrong type
+])
+def test_one_rule_for_terms(client, term, status, words):
+    r = client.post("/v1/expectation", json={"basis": "standard-ultimate",
+                                             "lives": [{"age": 60}], "term": term})
+    answer = problem(r, status, ["$.term"])
+    assert words in answer["errors"][0]["message"]

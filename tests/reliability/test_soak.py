@@ -53,7 +53,14 @@ def test_sigterm_lets_in_flight_requests_finish(tmp_path):
     threads = [threading.Thread(target=one) for _ in range(6)]
     for t in threads:
         t.start()
-    time.sleep(1.0)  # every request is sent and being computed (each takes seconds)
+    # SIGTERM only once the server has received all six (the /metrics request itself is the
+    # seventh in progress): a request still being sent when the listening socket closes was
+    # never accepted, and a client may then see its connection reset. Waiting a fixed second
+    # instead let a slow client lose that race now and then.
+    deadline = time.monotonic() + 60
+    while _in_progress(server.base) < 7:
+        assert time.monotonic() < deadline, "the six requests never all reached the server"
+        time.sleep(0.05)
     stopped_at = time.monotonic()
     code = server.stop(timeout=90)
     took = time.monotonic() - stopped_at
@@ -68,3 +75,12 @@ def test_sigterm_lets_in_flight_requests_finish(tmp_path):
     assert '"level":"error"' not in server.log()
     with pytest.raises(httpx.TransportError):
         httpx.get(f"{server.base}/health", timeout=2)
+
+
+def _in_progress(base: str) -> int:
+    """Requests the server has received and not yet answered (this one included)."""
+    text = httpx.get(f"{base}/metrics", timeout=10).text
+    for line in text.splitlines():
+        if line.startswith("lifetime_http_requests_in_progress "):
+            return int(float(line.split()[1]))
+    raise AssertionError("no in-progress gauge in /metrics")
