@@ -329,9 +329,9 @@ class ConstantForce(Law):
     def _compile(self):  # nothing to precompute: every quantity is closed form
         pass
 
-    def expectation_summary(self, age, duration, term=None):
+    def _moment_summary(self, age, duration, term=None):
         """From the closed-form moments: this law has no year grid to look up."""
-        return LifetimeModel.expectation_summary(self, age, duration, term)
+        return LifetimeModel._moment_summary(self, age, duration, term)
 
 
 def _stirling2(k: int) -> list[int]:
@@ -398,9 +398,9 @@ class DeMoivre(Law):
             )
         return np.where((m > 0)[..., None] & (a > 0)[..., None], out, 0.0)
 
-    def expectation_summary(self, age, duration, term=None):
+    def _moment_summary(self, age, duration, term=None):
         """From the closed-form moments, so that every life takes the same route."""
-        return LifetimeModel.expectation_summary(self, age, duration, term)
+        return LifetimeModel._moment_summary(self, age, duration, term)
 
     def complete_moments(self, age, duration, orders, term=None):
         """T_x/(ω − x) is Beta(1, α): E[T^k] = (ω − x)^k k! Γ(α + 1)/Γ(α + k + 1), the ratio

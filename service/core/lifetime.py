@@ -255,7 +255,18 @@ class LifetimeModel(ABC):
         return surv, death, mu, dens
 
     def expectation_summary(self, age, duration, term=None):
-        """(e̊, e, Var T, Var K), whole life or temporary, from the first two moments."""
+        """(e̊, e, Var T, Var K), whole life or temporary: from the first two moments, with the
+        variances that the difference E[X²] − E[X]² would leave with few digits recomputed
+        as integrals of positive terms (:mod:`variance`)."""
+        from . import variance
+
+        summary = self._moment_summary(age, duration, term)
+        if not variance.cancels(summary):
+            return summary
+        return variance.refine(self, age, duration, term, summary)
+
+    def _moment_summary(self, age, duration, term=None):
+        """(e̊, e, Var T, Var K) from the first two moments."""
         complete = self.complete_moments(age, duration, _FIRST_TWO, term)
         curtate = self.curtate_moments(age, duration, _FIRST_TWO, term)
         return _summary(complete[:, 0], complete[:, 1], curtate[:, 0], curtate[:, 1])
@@ -267,12 +278,10 @@ class LifetimeModel(ABC):
         return self.curtate_moments(age, duration, [1], term)[:, 0]
 
     def complete_variance(self, age, duration, term=None) -> np.ndarray:
-        m = self.complete_moments(age, duration, [1, 2], term)
-        return np.maximum(m[:, 1] - m[:, 0] ** 2, 0.0)
+        return self.expectation_summary(age, duration, term)[2]
 
     def curtate_variance(self, age, duration, term=None) -> np.ndarray:
-        m = self.curtate_moments(age, duration, [1, 2], term)
-        return np.maximum(m[:, 1] - m[:, 0] ** 2, 0.0)
+        return self.expectation_summary(age, duration, term)[3]
 
     def curtate_quantiles(self, age, duration, probabilities) -> np.ndarray:
         """The least whole k with P(K_x ≤ k) ≥ p, i.e. with ₖ₊₁p_x ≤ 1 − p.
@@ -647,7 +656,7 @@ class YearGridModel(LifetimeModel):
 
     # ---- the hot paths ----------------------------------------------------------------------
 
-    def expectation_summary(self, age, duration, term=None):
+    def _moment_summary(self, age, duration, term=None):
         """Whole life: four lookups in the per-basis tables at whole ages, or one evaluation of
         the per-year expansions at exact ages (a plain-float path for one life, with the
         same operations as the batch path, so the same bits)."""
@@ -666,7 +675,7 @@ class YearGridModel(LifetimeModel):
                 if frac > 0.0 and cell >= 0:
                     s, u0, u1, v1, v2 = self.exact_ages.evaluate_one(cell, frac, _SUMMARY)
                     return _summary_arrays(u0 / s, 2.0 * (u1 / s), v1 / s, v2 / s)
-                return super().expectation_summary(age, duration, term)
+                return super()._moment_summary(age, duration, term)
             loc = self._locate(age, duration)
             if not np.any(loc.frac > 0.0):
                 tail = self.tail_moments[loc.row, loc.index, :2]
@@ -677,7 +686,7 @@ class YearGridModel(LifetimeModel):
                 v = self.exact_ages.evaluate(cell, loc.frac, _SUMMARY)
                 s = v[:, 0]
                 return _summary(v[:, 1] / s, 2.0 * (v[:, 2] / s), v[:, 3] / s, v[:, 4] / s)
-        return super().expectation_summary(age, duration, term)
+        return super()._moment_summary(age, duration, term)
 
     def span_hazard(self, age, duration, t0, t1):
         age, duration, t0, t1 = np.broadcast_arrays(

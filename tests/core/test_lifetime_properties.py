@@ -45,10 +45,12 @@ def test_survival_starts_at_one_and_never_rises(name, u, v, ts):
     p = m.survival([x], [d], t)[0]
     q = m.death([x], [d], t)[0]
     assert p[0] == 1.0 and q[0] == 0.0
-    # never rises, to rounding: two durations a few ulps apart on either side of a whole age
-    # are computed by different (each exact) formulas, e.g. one Gauss–Legendre piece of a GM
-    # exponent versus two pieces and the per-year table, which may differ by 1e-15 relative
-    assert np.all(np.diff(p) <= 4e-16 * p[:-1])
+    # each duration's cumulative hazard is computed on its own, with a rounding of about one
+    # unit in the last place of H (numpy's vectorised exp and log may round differently with
+    # the array's alignment), so two close durations may be out of order by that much: at
+    # H ≈ 15 that is a relative 2e-15 of ₜp. More than a few such units is a real rise.
+    slack = 8.0 * np.finfo(float).eps * np.maximum(1.0, -np.log(np.maximum(p[:-1], 1e-300)))
+    assert np.all(np.diff(p) <= slack * p[:-1])
     assert np.all((p >= 0.0) & (p <= 1.0)) and np.all(np.isfinite(q))
     np.testing.assert_allclose(p + q, 1.0, rtol=0, atol=2e-16)
 
