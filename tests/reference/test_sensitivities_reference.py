@@ -100,11 +100,12 @@ def test_bad_sensitivities_name_the_field(model, ask, field):
     assert info.value.field == field
 
 
-def test_a_shift_to_a_rate_at_or_below_minus_one_is_refused():
-    # i − h = −1.1: no such rate
+def test_a_shift_to_a_rate_outside_the_interest_domain_is_refused():
+    # i − h = 0.02 − 0.1 = −0.08, below the service's interest domain (−5% to 100% a year)
     with pytest.raises(DomainError) as info:
-        _run(SULT, [LifeAnnuity(term=10)], Sensitivity(shift=0.5), rate=-0.6)
+        _run(SULT, [LifeAnnuity(term=10)], Sensitivity(shift=0.1), rate=0.02)
     assert info.value.field == "sensitivities.interest_shift"
+    assert "-0.05" in info.value.message
     # i − h = −0.01 is a rate, but at it a whole-life annuity on a constant force of 0.01
     # does not converge (μ + δ < 0): the shifted valuation says so, naming the shift
     with pytest.raises(DomainError) as info:
