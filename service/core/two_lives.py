@@ -184,18 +184,17 @@ def _pair_nodes(mx, ax, dx, my, ay, dy, edges, discount):
     py = np.round(np.asarray(my.kink_phase(ay, dy), float), 12)
     keys, inverse = np.unique(np.stack([px, py], axis=1), axis=0, return_inverse=True)
     lo, hi = float(edges[0]), float(edges[-1])
-    span = np.arange(0, math.ceil(hi - lo) + 3, dtype=float)
     joint = _Joint(mx, my)
     for g, (phase_x, phase_y) in enumerate(keys):
         idx = np.flatnonzero(inverse.ravel() == g)
-        extra = [edges, phase_y + math.floor(lo - phase_y) + span]
+        extra = [edges]
         for model, ages in ((mx, ax[idx]), (my, ay[idx])):
             omega = getattr(model, "limiting_age", math.inf)
             if math.isfinite(omega):
                 ends = np.unique(omega - ages)
                 extra.append(ends[(ends > lo) & (ends < hi)][:64])
-        cut = pv._panel_edges(lo, hi, float(phase_x), list(np.concatenate(extra)), discount,
-                              None, None)
+        cut = pv._panel_edges(lo, hi, (float(phase_x), float(phase_y)),
+                              list(np.concatenate(extra)), discount, None, None)
         pv._check_count(cut.size * 4)
         both = np.stack([ax[idx], ay[idx]], axis=1), np.stack([dx[idx], dy[idx]], axis=1)
         t, w = pv._nodes(joint, both[0], both[1], cut)

@@ -534,13 +534,17 @@ def _pure_endowment(model, age, duration, term: float, discount: Discount):
 # ---- continuous benefits: Gauss–Legendre panels between kinks ---------------------------------
 
 
-def _panel_edges(lo: float, hi: float, phase: float, extra: list[float], discount: Discount,
-                 steps_from: float | None, limit_offset: float | None) -> np.ndarray:
+def _panel_edges(lo: float, hi: float, phases: tuple[float, ...], extra: list[float],
+                 discount: Discount, steps_from: float | None,
+                 limit_offset: float | None) -> np.ndarray:
+    """Panel edges from ``lo`` to ``hi``: every kink of each family (its phase + whole years),
+    the interest's and the benefit's yearly steps, the limiting age and ``extra``."""
     if hi <= lo:
         return np.array([lo, lo])
     pts = [np.array([lo, hi])]
-    first = phase + math.floor(lo - phase)
-    pts.append(first + np.arange(0, math.ceil(hi - first) + 2, dtype=float))
+    for phase in phases:
+        first = phase + math.floor(lo - phase)
+        pts.append(first + np.arange(0, math.ceil(hi - first) + 2, dtype=float))
     if discount.rate is None:
         pts.append(np.arange(math.floor(lo), math.ceil(hi) + 1, dtype=float))
     if steps_from is not None:
@@ -576,10 +580,14 @@ def _nodes(model, age, duration, edges: np.ndarray):
 
 
 def _phase_groups(model, age, duration):
-    phase = np.asarray(model.kink_phase(age, duration), float)
-    phase = np.round(phase, 12)
-    values, inverse = np.unique(phase, return_inverse=True)
-    return [(float(p), np.flatnonzero(inverse == i)) for i, p in enumerate(values)]
+    """The lives grouped by the phases of all their kink families (a status has one family
+    per member: a table's kinks at whole ages beside a law's or a select table's)."""
+    phases = np.asarray(model.kink_phases(age, duration), float)
+    phases = np.round(phases.reshape(age.shape[0], -1), 12)
+    values, inverse = np.unique(phases, axis=0, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    return [(tuple(float(x) for x in row), np.flatnonzero(inverse == i))
+            for i, row in enumerate(values)]
 
 
 def _limit_offset(model, age) -> float | None:

@@ -43,24 +43,16 @@ def test_reversionary_annuity_is_a_y_less_a_xy(members, timing, m):
     np.testing.assert_allclose(half, 0.5 * rev, rtol=1e-15)
 
 
-# The joint-life status's own moment-of-death insurance (core/several.py) places its panels at
-# the smallest of its members' kink phases, and a table's phase is reported as 1.0 rather than
-# 0.0, so with a table beside a law its panels miss the table's kinks at whole ages (an error
-# of about 3e-7 here). The contingent insurances break at both members' kinks; this case is
-# expected to fail until the status is fixed, and then to pass (strict).
-STATUS_KINKS = pytest.mark.xfail(strict=True, reason="joint-life status panels miss a table "
-                                 "member's kinks when the other member is a law")
-
-
+# A joint-life status of a table and a law: its moment-of-death panels must break at both
+# members' kinks (the table's at whole ages, the law's at the other member's age), or the
+# identities below fail by about 3e-7.
 @pytest.mark.parametrize("timing,m", [("end-of-year", 1), ("end-of-period", 4),
                                       ("moment-of-death", 1)])
 @pytest.mark.parametrize("members", [
     (SULT, GOMPERTZ),
     pytest.param((TABLE, SULT), id="table-law"),
 ])
-def test_contingent_insurances_add_up(members, timing, m, request):
-    if timing == "moment-of-death" and members[0] is TABLE:
-        request.applymarker(STATUS_KINKS)
+def test_contingent_insurances_add_up(members, timing, m):
     # textbook identities: A¹_xy + A¹_yx = A_xy (the first death, either way round) and
     # A¹_xy + A²_xy = A_x (x dies before or after y)
     ages = [[60.0, 57.5], [66.5, 70.0]]
