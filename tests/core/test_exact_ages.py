@@ -171,3 +171,22 @@ def test_whole_ages_still_use_the_whole_age_tables():
     np.testing.assert_array_equal(m.complete_moments(age, 0.0, [1])[:, 0],
                                   m.tail_moments[loc.row, loc.index, 0])
     assert not is_select("makeham")
+
+
+def test_a_basis_builds_its_expansions_once_enough_exact_ages_pay_for_them():
+    """A fresh basis values its first exact-age lives directly (building the expansions costs
+    as much as some hundreds of them), then builds them; the answers agree either way."""
+    from service.core.lifetime import EXPANSION_AFTER_LIVES
+
+    m = _improved()
+    age = np.array([47.63])
+    before = m.expectation_summary(age, np.zeros(1))
+    assert m._exact_ages is None
+    many, _ = _lives("improved-table", m, n=EXPANSION_AFTER_LIVES, seed=3)
+    m.expectation_summary(many, np.zeros(many.size))
+    assert m._exact_ages is not None
+    after = m.expectation_summary(age, np.zeros(1))
+    for b, a in zip(before, after):
+        assert _rel(a, b)[0] <= 2e-14
+    direct = _direct(m, age, np.zeros(1))
+    assert _rel(before[0], direct[0][:, 0])[0] <= 1e-15  # e̊ = E[T]: the direct computation

@@ -26,7 +26,9 @@ def test_soak_keeps_answering_with_flat_memory(tmp_path):
     assert result.errors == [], result.errors
     assert set(result.statuses) == {200}
     assert result.requests > 1000
-    assert result.distinct_inline > 1000, "the soak must compile thousands of inline bases"
+    # the cache (128) must turn over several times; an absolute count of compilations would
+    # measure the machine's speed, not the service's memory
+    assert result.distinct_inline > 4 * 128, "the soak must compile many more bases than fit"
     assert result.cache_size <= result.cache_capacity == 128
     assert result.rss_at_end_kib <= 1.10 * result.rss_after_warm_up_kib
     assert code == 0  # a graceful stop on SIGTERM is a clean exit
