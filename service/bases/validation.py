@@ -121,7 +121,9 @@ def field_error(text: str) -> tuple[str, str]:
                 f"object), got {_words(got)}"
             )
         if got == "float" and "int" in expected.split(" | "):
-            return path, "must be a whole number (a number with no fractional part)"
+            # msgspec decodes strictly: 20.0 is a float even though its value is whole
+            return path, ("must be a whole number, written without a decimal point or an "
+                          "exponent (20, not 20.0 or 2e1)")
         return path, f"must be {_words(expected)}, got {_words(got)}"
     if found := _INVALID_VALUE.match(message):
         value = found.group("value")

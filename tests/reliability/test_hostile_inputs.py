@@ -320,7 +320,8 @@ def test_an_invalid_choice_lists_the_allowed_values(client, benefit, field, word
 @pytest.mark.parametrize("term, status, words", [
     (20000, 422, "at most 10000"),  # a whole number outside its bounds
     (0, 422, "at least 1"),
-    (10.5, 400, "whole number (a number with no fractional part)"),  # the wrong type
+    (10.5, 400, "must be a whole number, written without a decimal point"),  # the wrong type
+    (20.0, 400, "(20, not 20.0 or 2e1)"),  # strict decoding: a float literal is not an integer
 ])
 def test_one_rule_for_terms(client, term, status, words):
     r = client.post("/v1/expectation", json={"basis": "standard-ultimate",
