@@ -257,14 +257,21 @@ def _allowed_rate_fields(definition: dict) -> tuple[str, ...]:
     return ()
 
 
+def warm(model):
+    """Build everything a basis precomputes on demand (its exact-age expansions), as a stored
+    basis is at load: it is always hot, and its answers never depend on its history."""
+    if hasattr(model, "exact_ages"):
+        model.exact_ages  # noqa: B018
+    return model
+
+
 def compile_stored(stored: StoredBasisFile, where: str, resolve=None, expand=None) -> StoredBasis:
     try:
         model = build_model(stored.definition, resolve)
     except DomainError as exc:
         field = exc.within("definition").field
         raise BasisFileError(where, "$." + field, exc.message) from None
-    if hasattr(model, "exact_ages"):  # a stored basis is always hot, exact ages included
-        model.exact_ages  # noqa: B018
+    warm(model)
     return StoredBasis(
         id=stored.id,
         title=stored.title,

@@ -9,13 +9,14 @@ import math
 import numpy as np
 import pytest
 
+from service.bases.catalogue import warm
 from service.bases.compile import build_model
 from service.bases.definitions import DeMoivre, Makeham
 from service.version import service_version
 
 SULT = Makeham(A=0.00022, B=2.7e-6, c=1.124)
 SULT_JSON = {"type": "makeham", "A": 0.00022, "B": 0.0000027, "c": 1.124}
-MODEL = build_model(SULT)
+MODEL = warm(build_model(SULT))  # as the stored basis is: expansions built at load
 
 
 def _core(values):
