@@ -15,6 +15,7 @@ end date are the anniversaries passed, the end date included; the conventions of
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from datetime import date
 
 import numpy as np
@@ -24,9 +25,22 @@ from service.selection import AGE_CONVENTIONS
 _EPOCH = date(1970, 1, 1).toordinal()
 
 
+#: the day number that stands for a date not given
+NO_DATE = np.iinfo(np.int64).min
+
+
 def day_number(day: date) -> int:
     """Days since 1970-01-01."""
     return day.toordinal() - _EPOCH
+
+
+def day_numbers(days: Sequence[date | None]) -> np.ndarray:
+    """Days since 1970-01-01 of each date, ``NO_DATE`` for None, as int64."""
+    days = list(days)
+    if days.count(None) == len(days):
+        return np.full(len(days), NO_DATE)
+    return np.array([NO_DATE if d is None else d.toordinal() - _EPOCH for d in days],
+                    dtype=np.int64)
 
 
 def _anniversaries(year: np.ndarray, month: np.ndarray, day: np.ndarray) -> np.ndarray:
