@@ -77,14 +77,11 @@ def several_lives(lives: Sequence[Any], members: int) -> tuple[np.ndarray, np.nd
     return age, duration
 
 
-
 #: (field of one life, field of a status's members, the numeric field it stands for)
 _DATE_FIELDS = (("date_of_birth", "dates_of_birth", "age", "ages"),
                 ("date_of_entry", "dates_of_entry", "duration", "durations"))
 #: the fields only a status of several lives takes
 _STATUS_FIELDS = ("ages", "durations", "dates_of_birth", "dates_of_entry")
-
-
 _DATE_NAMES = tuple(name for pair in _DATE_FIELDS for name in pair[:2])
 
 
@@ -127,6 +124,7 @@ def dated_lives(lives: Sequence[Any], members: int, when: date | None,
 
 def _single_dated(lives: Sequence[Any], when: date | None,
                   convention: str) -> tuple[np.ndarray, np.ndarray]:
+    """The ages and durations of lives of a single-life basis, by number or by date."""
     given = np.array([np.nan if life.age is None else life.age for life in lives])
     duration = np.array([life.duration for life in lives], dtype=float)
     birth = day_numbers([life.date_of_birth for life in lives])
@@ -134,8 +132,9 @@ def _single_dated(lives: Sequence[Any], when: date | None,
     by_age, by_birth, by_entry = ~np.isnan(given), birth != NO_DATE, entry != NO_DATE
     for bad, name, message in (
         (by_age & by_birth, "date_of_birth", "give age or date_of_birth, not both"),
-        (~by_age & ~by_birth, "age", "required field is missing"),
-        ((duration != 0.0) & by_entry, "date_of_entry", "give duration or date_of_entry, not both"),
+        (~by_age & ~by_birth, "age", "required field is missing: age or date_of_birth"),
+        ((duration != 0.0) & by_entry, "date_of_entry",
+         "give duration or date_of_entry, not both"),
     ):
         if bad.any():
             raise bad_field(f"$.lives[{int(np.argmax(bad))}].{name}", message)

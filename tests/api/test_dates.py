@@ -73,6 +73,16 @@ def test_each_convention_is_echoed_with_the_age_it_gave(client, convention, expe
     assert [r["age"] for r in answer["results"]] == [expected, 50.0]
 
 
+def test_a_calculation_date_beside_ages_only_changes_nothing_but_the_echo(client):
+    body = {"basis": "standard-ultimate", "lives": [{"age": 61.25}, {"age": 30}], "t": [1, 2]}
+    plain = _post(client, "/v1/survival", body)
+    dated = _post(client, "/v1/survival", {**body, "calculation_date": "2024-10-17",
+                                           "age_convention": "next-birthday"})
+    _same_numbers(dated, plain)
+    assert dated["age_convention"] == "next-birthday"  # numbers are used as sent
+    assert [r["age"] for r in dated["results"]] == [61.25, 30.0]
+
+
 def test_an_exact_age_against_python_s_datetime(client):
     # the reference: Python's datetime, (calculation date − last birthday) over (next − last)
     born, on = date(1961, 11, 30), date(2025, 3, 14)
@@ -169,6 +179,7 @@ BASE = {"basis": "standard-ultimate", "calculation_date": "2024-10-17", "t": [1]
          "$.age_convention"),
         ({"lives": [{"dates_of_birth": ["1979-04-17", "1980-01-01"]}]}, 422, "outside-domain",
          "$.lives[0].dates_of_birth"),
+        ({"lives": [{"duration": 1}]}, 422, "outside-domain", "$.lives[0].age"),
         ({"lives": [{"date_of_birth": "1979-04-17", "unknown": 1}]}, 400, "invalid-request",
          "$.lives[0].unknown"),
     ],
