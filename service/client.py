@@ -39,7 +39,8 @@ import asyncio
 import time
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Any, Never, Union
+from datetime import date
+from typing import Any, Literal, Never, Union
 from urllib.parse import quote
 
 import httpx
@@ -204,6 +205,12 @@ LifeArgument = Union[Life, Mapping[str, Any]]
 InterestArgument = Union[Interest, Mapping[str, Any]]
 BenefitArgument = Union[BenefitRequest, Mapping[str, Any]]
 
+#: calculation_date: a date, or its ISO 8601 text ("2024-10-17"); age_convention: one of
+#: service.selection.AGE_CONVENTIONS. They count the ages and durations of lives given by
+#: date (``{"date_of_birth": "1979-04-17"}``)
+DateArgument = Union[date, str, None]
+AgeConventionArgument = Literal["exact", "last-birthday", "nearest-birthday", "next-birthday"]
+
 DEFAULT_URL = "http://127.0.0.1:8000"
 
 
@@ -263,9 +270,15 @@ def _post(request_type: type, fields: Mapping[str, Any], accept: str = "applicat
                  _checked(request_type, fields), accept)
 
 
-def _cash_flow_fields(basis, lives, interest, benefits, periods_per_year, unknown) -> dict:
+def _cash_flow_fields(basis, lives, interest, benefits, periods_per_year, dated,
+                      unknown) -> dict:
     return {"basis": basis, "lives": lives, "interest": interest, "benefits": benefits,
-            "periods_per_year": periods_per_year, **unknown}
+            "periods_per_year": periods_per_year, **dated, **unknown}
+
+
+def _dated(calculation_date: DateArgument, age_convention: AgeConventionArgument) -> dict:
+    """The request fields for lives given by date (``date_of_birth``, ``date_of_entry``, …)."""
+    return {"calculation_date": calculation_date, "age_convention": age_convention}
 
 
 def _prepared(request: msgspec.Struct) -> _Call:
@@ -397,34 +410,53 @@ class LifetimeClient(_Base):
     # calculations
 
     def survival(self, basis: BasisArgument, lives: Sequence[LifeArgument],
-                 t: Sequence[float], **unknown: Never) -> SurvivalResponse:
+                 t: Sequence[float],
+                 calculation_date: DateArgument = None,
+                 age_convention: AgeConventionArgument = "exact",
+                 **unknown: Never) -> SurvivalResponse:
         """POST /v1/survival: ₜp_x, ₜq_x, μ_{x+t} and f_x(t) at each duration ``t``."""
-        return self._send(_post(SurvivalRequest, {"basis": basis, "lives": lives, "t": t, **unknown}))
+        return self._send(_post(SurvivalRequest, {"basis": basis, "lives": lives, "t": t,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     def deferred_death(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                        deferral: Sequence[float], period: float = 1.0,
+                       calculation_date: DateArgument = None,
+                       age_convention: AgeConventionArgument = "exact",
                        **unknown: Never) -> DeferredDeathResponse:
         """POST /v1/deferred-death: u|ₜq_x for each ``deferral`` u (t = ``period``)."""
         return self._send(_post(DeferredDeathRequest, {
-            "basis": basis, "lives": lives, "deferral": deferral, "period": period, **unknown}))
+            "basis": basis, "lives": lives, "deferral": deferral, "period": period,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     def expectation(self, basis: BasisArgument, lives: Sequence[LifeArgument],
-                    term: Union[int, None] = None, **unknown: Never) -> ExpectationResponse:
+                    term: Union[int, None] = None,
+                    calculation_date: DateArgument = None,
+                    age_convention: AgeConventionArgument = "exact",
+                    **unknown: Never) -> ExpectationResponse:
         """POST /v1/expectation: e̊_x, e_x and their variances (of min(T, n) with ``term`` n)."""
         return self._send(_post(ExpectationRequest, {
-            "basis": basis, "lives": lives, "term": term, **unknown}))
+            "basis": basis, "lives": lives, "term": term,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     def moments(self, basis: BasisArgument, lives: Sequence[LifeArgument], orders: Sequence[int],
-                term: Union[int, None] = None, **unknown: Never) -> MomentsResponse:
+                term: Union[int, None] = None,
+                calculation_date: DateArgument = None,
+                age_convention: AgeConventionArgument = "exact",
+                **unknown: Never) -> MomentsResponse:
         """POST /v1/moments: E[T_x^k] and E[K_x^k] for each of the ``orders`` k."""
         return self._send(_post(MomentsRequest, {
-            "basis": basis, "lives": lives, "orders": orders, "term": term, **unknown}))
+            "basis": basis, "lives": lives, "orders": orders, "term": term,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     def quantiles(self, basis: BasisArgument, lives: Sequence[LifeArgument],
-                  probabilities: Sequence[float], **unknown: Never) -> QuantilesResponse:
+                  probabilities: Sequence[float],
+                  calculation_date: DateArgument = None,
+                  age_convention: AgeConventionArgument = "exact",
+                  **unknown: Never) -> QuantilesResponse:
         """POST /v1/quantiles: quantiles of T_x and K_x for each of the ``probabilities``."""
         return self._send(_post(QuantilesRequest, {
-            "basis": basis, "lives": lives, "probabilities": probabilities, **unknown}))
+            "basis": basis, "lives": lives, "probabilities": probabilities,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     def life_table(self, basis: BasisArgument, end_age: float, start_age: Union[float, None] = None,
                    radix: float = 100_000.0, duration: float = 0.0,
@@ -448,11 +480,14 @@ class LifetimeClient(_Base):
 
     def present_values(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                        interest: InterestArgument, benefits: Sequence[BenefitArgument],
+                       calculation_date: DateArgument = None,
+                       age_convention: AgeConventionArgument = "exact",
                        **unknown: Never) -> PresentValuesResponse:
         """POST /v1/present-values: per benefit, the expected present value, its second moment
         and standard deviation, and the net premium when asked for."""
         return self._send(_post(PresentValuesRequest, {
-            "basis": basis, "lives": lives, "interest": interest, "benefits": benefits, **unknown}))
+            "basis": basis, "lives": lives, "interest": interest, "benefits": benefits,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     def send(self, request: msgspec.Struct) -> Any:
         """Send a request Struct built beforehand (a SurvivalRequest, …); its response Struct."""
@@ -460,18 +495,26 @@ class LifetimeClient(_Base):
 
     def cash_flows(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                    interest: InterestArgument, benefits: Sequence[BenefitArgument],
-                   periods_per_year: int = 1, **unknown: Never) -> CashFlowsResponse:
+                   periods_per_year: int = 1,
+                   calculation_date: DateArgument = None,
+                   age_convention: AgeConventionArgument = "exact",
+                   **unknown: Never) -> CashFlowsResponse:
         """POST /v1/cash-flows: expected benefit outgo, premium income and probability in
         force per period, per life and summed."""
         return self._send(_post(CashFlowsRequest, _cash_flow_fields(
-            basis, lives, interest, benefits, periods_per_year, unknown)))
+            basis, lives, interest, benefits, periods_per_year,
+            _dated(calculation_date, age_convention), unknown)))
 
     def cash_flows_csv(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                        interest: InterestArgument, benefits: Sequence[BenefitArgument],
-                       periods_per_year: int = 1, **unknown: Never) -> str:
+                       periods_per_year: int = 1,
+                       calculation_date: DateArgument = None,
+                       age_convention: AgeConventionArgument = "exact",
+                       **unknown: Never) -> str:
         """POST /v1/cash-flows with ``Accept: text/csv``: the cash flows as CSV text."""
         return self._send(_post(CashFlowsRequest, _cash_flow_fields(
-            basis, lives, interest, benefits, periods_per_year, unknown), accept="text/csv"))
+            basis, lives, interest, benefits, periods_per_year,
+            _dated(calculation_date, age_convention), unknown), accept="text/csv"))
 
     # reading bases, operations
 
@@ -546,32 +589,49 @@ class AsyncLifetimeClient(_Base):
         return _decode(call, response)
 
     async def survival(self, basis: BasisArgument, lives: Sequence[LifeArgument],
-                       t: Sequence[float], **unknown: Never) -> SurvivalResponse:
+                       t: Sequence[float],
+                       calculation_date: DateArgument = None,
+                       age_convention: AgeConventionArgument = "exact",
+                       **unknown: Never) -> SurvivalResponse:
         return await self._send(_post(SurvivalRequest, {
-            "basis": basis, "lives": lives, "t": t, **unknown}))
+            "basis": basis, "lives": lives, "t": t,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     async def deferred_death(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                              deferral: Sequence[float], period: float = 1.0,
+                             calculation_date: DateArgument = None,
+                             age_convention: AgeConventionArgument = "exact",
                              **unknown: Never) -> DeferredDeathResponse:
         return await self._send(_post(DeferredDeathRequest, {
-            "basis": basis, "lives": lives, "deferral": deferral, "period": period, **unknown}))
+            "basis": basis, "lives": lives, "deferral": deferral, "period": period,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     async def expectation(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                           term: Union[int, None] = None,
+                          calculation_date: DateArgument = None,
+                          age_convention: AgeConventionArgument = "exact",
                           **unknown: Never) -> ExpectationResponse:
         return await self._send(_post(ExpectationRequest, {
-            "basis": basis, "lives": lives, "term": term, **unknown}))
+            "basis": basis, "lives": lives, "term": term,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     async def moments(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                       orders: Sequence[int], term: Union[int, None] = None,
+                      calculation_date: DateArgument = None,
+                      age_convention: AgeConventionArgument = "exact",
                       **unknown: Never) -> MomentsResponse:
         return await self._send(_post(MomentsRequest, {
-            "basis": basis, "lives": lives, "orders": orders, "term": term, **unknown}))
+            "basis": basis, "lives": lives, "orders": orders, "term": term,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     async def quantiles(self, basis: BasisArgument, lives: Sequence[LifeArgument],
-                        probabilities: Sequence[float], **unknown: Never) -> QuantilesResponse:
+                        probabilities: Sequence[float],
+                        calculation_date: DateArgument = None,
+                        age_convention: AgeConventionArgument = "exact",
+                        **unknown: Never) -> QuantilesResponse:
         return await self._send(_post(QuantilesRequest, {
-            "basis": basis, "lives": lives, "probabilities": probabilities, **unknown}))
+            "basis": basis, "lives": lives, "probabilities": probabilities,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     async def life_table(self, basis: BasisArgument, end_age: float,
                          start_age: Union[float, None] = None, radix: float = 100_000.0,
@@ -593,24 +653,35 @@ class AsyncLifetimeClient(_Base):
 
     async def present_values(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                              interest: InterestArgument, benefits: Sequence[BenefitArgument],
+                             calculation_date: DateArgument = None,
+                             age_convention: AgeConventionArgument = "exact",
                              **unknown: Never) -> PresentValuesResponse:
         return await self._send(_post(PresentValuesRequest, {
-            "basis": basis, "lives": lives, "interest": interest, "benefits": benefits, **unknown}))
+            "basis": basis, "lives": lives, "interest": interest, "benefits": benefits,
+            **_dated(calculation_date, age_convention), **unknown}))
 
     async def send(self, request: msgspec.Struct) -> Any:
         return await self._send(_prepared(request))
 
     async def cash_flows(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                          interest: InterestArgument, benefits: Sequence[BenefitArgument],
-                         periods_per_year: int = 1, **unknown: Never) -> CashFlowsResponse:
+                         periods_per_year: int = 1,
+                         calculation_date: DateArgument = None,
+                         age_convention: AgeConventionArgument = "exact",
+                         **unknown: Never) -> CashFlowsResponse:
         return await self._send(_post(CashFlowsRequest, _cash_flow_fields(
-            basis, lives, interest, benefits, periods_per_year, unknown)))
+            basis, lives, interest, benefits, periods_per_year,
+            _dated(calculation_date, age_convention), unknown)))
 
     async def cash_flows_csv(self, basis: BasisArgument, lives: Sequence[LifeArgument],
                              interest: InterestArgument, benefits: Sequence[BenefitArgument],
-                             periods_per_year: int = 1, **unknown: Never) -> str:
+                             periods_per_year: int = 1,
+                             calculation_date: DateArgument = None,
+                             age_convention: AgeConventionArgument = "exact",
+                             **unknown: Never) -> str:
         return await self._send(_post(CashFlowsRequest, _cash_flow_fields(
-            basis, lives, interest, benefits, periods_per_year, unknown), accept="text/csv"))
+            basis, lives, interest, benefits, periods_per_year,
+            _dated(calculation_date, age_convention), unknown), accept="text/csv"))
 
     async def bases(self) -> StoredBasesResponse:
         return await self._send(self._BASES)

@@ -53,6 +53,18 @@ def canonical_json():
     return canonical
 
 
+def _without_absent_dates(arguments: dict) -> dict:
+    """The README's rule for the fields of lives given by date: a life's date fields only when
+    given, calculation_date and age_convention only when calculation_date is given."""
+    out = {k: v for k, v in arguments.items()
+           if arguments.get("calculation_date") is not None
+           or k not in ("calculation_date", "age_convention")}
+    if "lives" in out:
+        out["lives"] = [{k: v for k, v in life.items()
+                         if v is not None or not k.startswith("date")} for life in out["lives"]]
+    return out
+
+
 @pytest.fixture(scope="session")
 def calculation_fingerprint_of():
     """calculation_fingerprint(endpoint, arguments with defaults filled in, basis fingerprint,
@@ -61,7 +73,7 @@ def calculation_fingerprint_of():
     def compute(endpoint: str, arguments: dict, basis_fingerprint: str, version: str) -> str:
         return sha256_of(
             {
-                "arguments": arguments,
+                "arguments": _without_absent_dates(arguments),
                 "basis": basis_fingerprint,
                 "endpoint": endpoint,
                 "service_version": version,

@@ -25,7 +25,9 @@ T = TypeVar("T")
 #: before any of them runs.
 MAX_JSON_DEPTH = 64
 
-_STRING = rb'"(?:[^"\\]|\\.)*"'
+#: a JSON string, its loop unrolled (runs of plain characters, then an escape): the same
+#: strings as ``"(?:[^"\\]|\\.)*"``, matched several times faster on bodies of many strings
+_STRING = rb'"[^"\\]*(?:\\.[^"\\]*)*"'
 _STRINGS = re.compile(_STRING)
 _TOKENS = re.compile(_STRING + rb"|[\[\]{},:]")
 _NOT_BRACKETS = bytes(b for b in range(256) if b not in b"[]{}")

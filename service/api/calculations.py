@@ -40,7 +40,7 @@ from . import audit
 from . import schemas as s
 from .body import decode, read_body
 from .conventions import chosen_media_type
-from .lives import several_lives
+from .lives import dated_lives, gives_any, several_lives
 from .problems import PROBLEM_MEDIA_TYPE, Problem, bad_field, domain_problem
 from .tabular import CSV_MEDIA_TYPE, cell, results_csv
 
@@ -142,9 +142,10 @@ class Calculations:
         request.scope["state"]["basis_fingerprint"] = found.fingerprint
         return found
 
-    def lives(
-        self, lives: list[s.Life], basis: ResolvedBasis, rule: str = "last-birthday"
-    ) -> tuple[np.ndarray, np.ndarray]:
+    def lives(self, req: Any, basis: ResolvedBasis) -> tuple[np.ndarray, np.ndarray]:
+        """The ages and durations of the request's lives (dates counted to its
+        calculation_date), checked and placed on the basis."""
+        lives: list[s.Life] = req.lives
         n = len(lives)
         if n > self.settings.max_lives:
             raise bad_field(
@@ -152,19 +153,12 @@ class Calculations:
                 f"at most {self.settings.max_lives} lives in one request (got {n})",
             )
         members = getattr(basis.model, "n_members", 1)
-        ages = [life.age for life in lives]
-        if (
-            members > 1
-            or None in ages
-            or [life.ages for life in lives].count(None) != n
-            or [life.durations for life in lives].count(None) != n
-        ):
-            age, duration = several_lives(lives, members)
-        else:
-            age = np.array(ages, dtype=float)
-            duration = np.array([life.duration for life in lives], dtype=float)
+        found = lives
+        if req.calculation_date is not None or gives_any(lives):
+            found = dated_lives(lives, members, req.calculation_date, req.age_convention)
+        age, duration = found if isinstance(found, tuple) else _numbers(found, members)
         _check_durations_apply(basis.model, duration)
-        age, duration = basis.model.place_lives(age, duration, rule)
+        age, duration = basis.model.place_lives(age, duration, req.selection_age_rule)
         basis.model.check_lives(age, duration)  # DomainError fields are "lives[i].age" …
         return age, duration
 
@@ -189,14 +183,19 @@ class Calculations:
     @staticmethod
     def stamp(request: Request[Any, Any, Any], req: Any, basis: ResolvedBasis) -> dict[str, Any]:
         """The fields every calculation answer starts with: the basis, the service version
-        and the calculation fingerprint (see audit.py)."""
-        return {
+        and the calculation fingerprint (see audit.py); with a calculation_date, it and the
+        age convention."""
+        stamp = {
             "basis": _reference(basis),
             "service_version": service_version(),
             "calculation_fingerprint": audit.record(
                 request.scope, request.scope["path"], req, basis.fingerprint
             ),
         }
+        if getattr(req, "calculation_date", None) is not None:
+            stamp["calculation_date"] = req.calculation_date
+            stamp["age_convention"] = req.age_convention
+        return stamp
 
     @staticmethod
     def respond(
@@ -242,6 +241,20 @@ class Calculations:
         if estimate > OFFLOAD_SECONDS:
             return await anyio.to_thread.run_sync(work)
         return work()
+
+
+def _numbers(lives: list[s.Life], members: int) -> tuple[np.ndarray, np.ndarray]:
+    """The ages and durations the lives give as numbers (several_lives checks the rest)."""
+    ages = [life.age for life in lives]
+    n = len(lives)
+    if (
+        members > 1
+        or None in ages
+        or [life.ages for life in lives].count(None) != n
+        or [life.durations for life in lives].count(None) != n
+    ):
+        return several_lives(lives, members)
+    return np.array(ages, dtype=float), np.array([life.duration for life in lives], dtype=float)
 
 
 def _check_durations_apply(model: Any, duration: np.ndarray) -> None:
@@ -302,7 +315,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         """For each life aged x and each t: ₜp_x, ₜq_x, μ_{x+t} and f_x(t) = ₜp_x μ_{x+t}."""
         req = await calc.read(request, s.SurvivalRequest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
+        age, duration = calc.lives(req, basis)
         t = calc.durations(req.t, "$.t", age.size)
         model = basis.model
 
@@ -336,7 +349,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         """
         req = await calc.read(request, s.DeferredDeathRequest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
+        age, duration = calc.lives(req, basis)
         u = calc.durations(req.deferral, "$.deferral", age.size)
         model, period = basis.model, req.period
         estimate = cost.seconds(model, len(req.lives), 2.0 * u.size, needs_horizon=False,
@@ -356,7 +369,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         """e̊_x and e_x (or, with `term` n, E[min(T_x, n)] and E[min(K_x, n)]) and variances."""
         req = await calc.read(request, s.ExpectationRequest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
+        age, duration = calc.lives(req, basis)
         model, term = basis.model, req.term
 
         def work():
@@ -401,7 +414,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 )
             seen.add(k)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
+        age, duration = calc.lives(req, basis)
         model, term = basis.model, req.term
 
         def work():
@@ -426,7 +439,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         """For each p: the t with ₜq_x = p, and the least whole k with P(K_x ≤ k) ≥ p."""
         req = await calc.read(request, s.QuantilesRequest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
+        age, duration = calc.lives(req, basis)
         p = np.asarray(req.probabilities, dtype=float)
         calc.check_size(age.size * p.size, "$.probabilities")
         model = basis.model

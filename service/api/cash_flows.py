@@ -97,7 +97,7 @@ def cash_flow_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         req: CashFlowsRequest = decode(_DECODER, await read_body(request, settings.max_body_bytes))
         discount = discount_of(req.interest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
+        age, duration = calc.lives(req, basis)
         items = quote_items(req)
         estimate = check_work(age, basis, discount, items, 2)
         model, m = basis.model, req.periods_per_year
@@ -128,10 +128,8 @@ def cash_flow_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         ]
         total = CashFlowsTotal(in_force.sum(axis=0).tolist(),
                                [BenefitCashFlows(o, p) for o, p in totals])
-        return Response(CashFlowsResponse(
-            basis=stamp["basis"], service_version=stamp["service_version"], period_start=start,
-            period_end=end, results=results, total=total,
-            calculation_fingerprint=stamp["calculation_fingerprint"]))
+        return Response(CashFlowsResponse(period_start=start, period_end=end, results=results,
+                                          total=total, **stamp))
 
     return [expected_cash_flows]
 

@@ -202,7 +202,7 @@ def present_value_handlers(settings: Settings, catalogue: Catalogue) -> list[Any
         )
         discount = discount_of(req.interest)
         basis = await calc.basis(request, req.basis)
-        age, duration = calc.lives(req.lives, basis, req.selection_age_rule)
+        age, duration = calc.lives(req, basis)
         items = quote_items(req)
         ask = _sensitivity(req)
         repeats = 1 if ask is None else 1 + (ask.kind is not None) + 2 * (ask.shift is not None)

@@ -12,13 +12,15 @@ age, say) is typed ``float | None``: the value is sent as ``null``. msgspec writ
 
 from __future__ import annotations
 
+from datetime import date
 from typing import Annotated, Literal, Union
 
 import msgspec
 from msgspec import Meta
 
 from service.bases.definitions import BASIS_DESCRIPTION, BASIS_KINDS, Basis, BasisDefinition
-from service.selection import SELECTION_AGE_RULES
+from service.bases.validation import allow
+from service.selection import AGE_CONVENTIONS, SELECTION_AGE_RULES
 
 __all__ = ["Basis", "BasisDefinition"]
 
@@ -55,8 +57,10 @@ Term = Annotated[
 
 
 class Life(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
-    """One life: its age and, for select bases, the years since selection. For a
-    joint-life or last-survivor basis, `ages` (one per member) instead of `age`."""
+    """One life: its age (or date of birth) and, for select bases, the years since selection
+    (or the date of entry). For a joint-life or last-survivor basis, `ages` or
+    `dates_of_birth` (one per member) instead of `age`. Dates need the request's
+    `calculation_date`; the request's `age_convention` counts them."""
 
     age: Union[Annotated[float, Meta(ge=0, description="age in years, at least 0")], None] = None
     duration: Annotated[
@@ -89,6 +93,28 @@ class Life(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
         ],
         None,
     ] = None
+    date_of_birth: Union[
+        Annotated[date, Meta(description="instead of age: the date of birth (ISO 8601, "
+                             "YYYY-MM-DD); the age is counted to calculation_date by "
+                             "age_convention")],
+        None,
+    ] = None
+    date_of_entry: Union[
+        Annotated[date, Meta(description="instead of duration (select bases): the date of "
+                             "selection, at or before calculation_date and not before the "
+                             "date of birth; counted like the age")],
+        None,
+    ] = None
+    dates_of_birth: Union[
+        Annotated[list[date], Meta(min_length=2, max_length=8, description="instead of ages: "
+                                   "each member's date of birth")],
+        None,
+    ] = None
+    dates_of_entry: Union[
+        Annotated[list[date], Meta(min_length=2, max_length=8, description="instead of "
+                                   "durations: each member's date of entry")],
+        None,
+    ] = None
 
 
 Lives = Annotated[
@@ -111,6 +137,30 @@ def _durations(what: str) -> object:
     ]
 
 
+CalculationDate = Annotated[
+    Union[date, None],
+    Meta(description="the date at which ages and durations given by date are counted (ISO "
+         "8601, YYYY-MM-DD); required when any life gives a date, and never taken as today"),
+]
+AgeConvention = Annotated[
+    Literal[tuple(AGE_CONVENTIONS)],  # type: ignore[misc]
+    Meta(description="How an age (and a duration) is counted from a date to calculation_date; "
+         "ages and durations given as numbers are used as given. Completed years are the "
+         "birthdays passed, a 29 February birthday falling on 28 February in common years. "
+         + "; ".join(f"`{k}`: {v}" for k, v in AGE_CONVENTIONS.items()) + "."),
+]
+
+
+allow(r"^\$\.age_convention$", ", ".join(AGE_CONVENTIONS))
+
+
+class Dated(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=True):
+    """The fields every request with lives takes for lives given by date."""
+
+    calculation_date: CalculationDate = None
+    age_convention: AgeConvention = "exact"
+
+
 SelectionAgeRule = Annotated[
     Literal["last-birthday", "nearest-birthday"],
     Meta(
@@ -122,7 +172,7 @@ SelectionAgeRule = Annotated[
 ]
 
 
-class SurvivalRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+class SurvivalRequest(Dated, frozen=True, forbid_unknown_fields=True):
     """Survival and death probabilities, force of mortality and density at durations t."""
 
     basis: BasisField
@@ -131,7 +181,7 @@ class SurvivalRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
     selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
-class DeferredDeathRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+class DeferredDeathRequest(Dated, frozen=True, forbid_unknown_fields=True):
     """Deferred death probabilities u|ₜq_x = P(u < T_x ≤ u + t) for each deferral u."""
 
     basis: BasisField
@@ -143,7 +193,7 @@ class DeferredDeathRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=Tr
     selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
-class ExpectationRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+class ExpectationRequest(Dated, frozen=True, forbid_unknown_fields=True):
     """Complete and curtate expectations of life and their variances."""
 
     basis: BasisField
@@ -152,7 +202,7 @@ class ExpectationRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True
     selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
-class MomentsRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+class MomentsRequest(Dated, frozen=True, forbid_unknown_fields=True):
     """Raw moments E[T_x^k] and E[K_x^k] for the orders k asked for."""
 
     basis: BasisField
@@ -171,7 +221,7 @@ class MomentsRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
     selection_age_rule: SelectionAgeRule = "last-birthday"
 
 
-class QuantilesRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+class QuantilesRequest(Dated, frozen=True, forbid_unknown_fields=True):
     """Quantiles of T_x and K_x for the probabilities asked for."""
 
     basis: BasisField
@@ -355,35 +405,48 @@ CalculationFingerprint = Annotated[
 ]
 
 
-class SurvivalResponse(msgspec.Struct, frozen=True):
+class DatedAnswer(msgspec.Struct, frozen=True, kw_only=True, omit_defaults=True):
+    """What an answer to a request with calculation_date says of it (omitted otherwise)."""
+
+    calculation_date: Annotated[
+        Union[date, None], Meta(description="the request's calculation_date, when given")
+    ] = None
+    age_convention: Annotated[
+        Union[str, None],
+        Meta(description="the convention that counted the ages and durations given by date "
+             "(with calculation_date); the results echo the values it gave"),
+    ] = None
+
+
+class SurvivalResponse(DatedAnswer, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[SurvivalResult]
     calculation_fingerprint: CalculationFingerprint
 
 
-class DeferredDeathResponse(msgspec.Struct, frozen=True):
+class DeferredDeathResponse(DatedAnswer, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[DeferredDeathResult]
     calculation_fingerprint: CalculationFingerprint
 
 
-class ExpectationResponse(msgspec.Struct, frozen=True):
+class ExpectationResponse(DatedAnswer, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[ExpectationResult]
     calculation_fingerprint: CalculationFingerprint
 
 
-class MomentsResponse(msgspec.Struct, frozen=True):
+class MomentsResponse(DatedAnswer, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[MomentsResult]
     calculation_fingerprint: CalculationFingerprint
 
 
-class QuantilesResponse(msgspec.Struct, frozen=True):
+class QuantilesResponse(DatedAnswer, frozen=True):
     basis: BasisReference
     service_version: ServiceVersion
     results: list[QuantilesResult]

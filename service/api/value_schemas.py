@@ -233,7 +233,7 @@ class SensitivitiesRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=Tr
     ] = None
 
 
-class _BenefitsRequest(msgspec.Struct, frozen=True, forbid_unknown_fields=True):
+class _BenefitsRequest(s.Dated, frozen=True, forbid_unknown_fields=True):
     """What the present-value and cash-flow requests share: lives on a basis, interest and
     benefits."""
 
@@ -298,7 +298,7 @@ class PresentValuesResult(s.LifeEcho, frozen=True, kw_only=True, omit_defaults=T
     benefits: Annotated[list[BenefitResult], Meta(description="aligned with the request's")]
 
 
-class PresentValuesResponse(msgspec.Struct, frozen=True):
+class PresentValuesResponse(s.DatedAnswer, frozen=True):
     basis: s.BasisReference
     service_version: s.ServiceVersion
     results: list[PresentValuesResult]
@@ -342,7 +342,7 @@ class CashFlowsTotal(msgspec.Struct, frozen=True):
     ]
 
 
-class CashFlowsResponse(msgspec.Struct, frozen=True):
+class CashFlowsResponse(s.DatedAnswer, frozen=True):
     basis: s.BasisReference
     service_version: s.ServiceVersion
     period_start: Annotated[list[float], Meta(description="the start of each period, in years")]

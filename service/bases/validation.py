@@ -29,6 +29,7 @@ _TYPE_WORDS = {
     "object": "an object",
     "bool": "true or false",
     "null": "null",
+    "date": "a date (YYYY-MM-DD)",
 }
 _BASIS_TYPES = ", ".join(k.__struct_config__.tag for k in BASIS_KINDS)  # type: ignore[misc]
 _FRACTIONAL = "udd, constant-force, balducci"
@@ -132,6 +133,9 @@ def field_error(text: str) -> tuple[str, str]:
             if pattern.search(path):
                 return path, f"{what} {value}; allowed: {allowed}"
         return path, f"{what} {value}"
+    if message == "Invalid RFC3339 encoded date":
+        return path, ("not a date: must be a calendar date that exists, written YYYY-MM-DD "
+                      "(ISO 8601; 29 February only in leap years)")
     if message == "Number out of range":
         return path, "number out of range: must be a finite number"
     return path, message

@@ -8,6 +8,7 @@ import subprocess
 import sys
 import threading
 import time
+from datetime import date
 
 import httpx
 import msgspec
@@ -304,6 +305,37 @@ def test_the_async_client(service):
     assert ready.status == "ready"
     assert answers[0].results[0].complete > answers[1].results[0].complete > 0
     assert error.status == 404
+
+
+def test_lives_by_date_through_both_clients(service):
+    # born 1979-04-17, valued 2024-10-17: 45 completed years and 183 of the 365 days to the
+    # next birthday (hand computation); last birthday, 45
+    lives = [{"date_of_birth": "1979-04-17"}]
+    dated = {"calculation_date": date(2024, 10, 17)}
+    with LifetimeClient(service.url) as client:
+        exact = client.expectation(basis="standard-ultimate", lives=lives, **dated)
+        whole = client.survival(basis="standard-ultimate", lives=lives, t=[1], **dated,
+                                age_convention="last-birthday")
+        values = client.present_values(
+            basis="standard-ultimate", lives=lives, interest={"rate": 0.05},
+            benefits=[{"type": "life-annuity"}], **dated, age_convention="next-birthday")
+        with pytest.raises(LifetimeServiceError) as caught:  # refused before sending
+            client.expectation(basis="standard-ultimate", lives=lives, **dated,
+                               age_convention="age-nearest")  # type: ignore[arg-type]
+
+    async def run():
+        async with AsyncLifetimeClient(service.url) as client:
+            return await client.cash_flows(
+                basis="standard-ultimate", lives=lives, interest={"rate": 0.05},
+                benefits=[{"type": "life-insurance", "term": 2}], calculation_date="2024-10-17",
+                age_convention="nearest-birthday")
+
+    flows = asyncio.run(run())
+    assert exact.results[0].age == 45 + 183 / 365 and exact.age_convention == "exact"
+    assert exact.calculation_date == date(2024, 10, 17)
+    assert whole.results[0].age == 45.0 and whole.age_convention == "last-birthday"
+    assert values.results[0].age == 46.0 and flows.results[0].age == 46.0
+    assert not caught.value.sent and caught.value.errors[0][0] == "$.age_convention"
 
 
 def test_a_bearer_token_is_sent(tmp_path):
