@@ -14,7 +14,8 @@ from collections.abc import Callable
 
 import numpy as np
 
-from service.core.lifetime import MAX_ORDER, N_MOM
+from service.core.expansion import DEGREE
+from service.core.lifetime import EXP_CURTATE, MAX_ORDER, N_MOM, REQUEST_EXPANSION_BUDGET
 from service.core.transforms import MAX_IMPROVED_RATES, MAX_IMPROVED_VALUES
 
 from . import definitions as d
@@ -22,6 +23,11 @@ from . import definitions as d
 #: doubles a compiled table keeps per row and year of age: q, the cumulative hazard, one-year
 #: survival, the per-year moments, the tail moments and the curtate moments
 FLOATS_PER_YEAR = 3 + 2 * N_MOM + MAX_ORDER + 1
+#: what a year's exact-age expansions take once built, reserved from the start (they are
+#: built on demand, after the cache has measured the basis): every expanded quantity's
+#: Chebyshev coefficients on two segments of the year, about what the compile-time checks
+#: leave on average (most years need one segment, steep ones up to eight)
+EXPANSION_BYTES_PER_YEAR = 2 * (DEGREE + 1) * (EXP_CURTATE + MAX_ORDER + 1) * 8
 #: a rough allowance for the Python objects of one model (not its arrays)
 OBJECT_BYTES = 2_048
 #: what a law's compiled year grid takes at most (its horizon is at most 10,000 years)
@@ -52,7 +58,12 @@ def compiled_bytes(model: object) -> int:
             stack.extend(obj.values())
         elif hasattr(obj, "__dict__") and not isinstance(obj, type):
             total += OBJECT_BYTES
-            stack.extend(vars(obj).values())
+            fields = vars(obj)
+            if "_exact_ages" in fields and fields["_exact_ages"] is None:
+                cost = obj._expansion_cost()  # (panel-)years: at least the years expanded
+                if cost <= REQUEST_EXPANSION_BUDGET:  # what a request may build later
+                    total += cost * EXPANSION_BYTES_PER_YEAR
+            stack.extend(fields.values())
     return total
 
 

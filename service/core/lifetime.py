@@ -48,11 +48,17 @@ EXP_CURTATE = EXP_TAIL + N_MOM - 1  # EXP_CURTATE + k: s · E[K^k], k = 1..MAX_O
 _TERM_BLOCK = 128  # durations per block of a direct sum (fixed, so sums do not depend on the batch)
 EXPAND_HAZARD = 20.0  # see YearGridModel._valuable_years
 EXPANSION_BUDGET = 12_000  # years (tables) or panel-years (laws) a basis may expand
-#: exact-age lives a basis values directly before its expansions are built: building them
-#: costs about as much as valuing 40 to 250 lives directly (20 to 130 ms, measured), so an
-#: inline basis sent once with a few lives never pays for them; a stored basis builds them
-#: at load (service/bases/catalogue.py)
+#: exact-age lives a basis values directly before its expansions are built, at least, and per
+#: (panel-)year to expand: building costs about 0.3 ms a year and a direct life 20 to 40 µs in
+#: a batch (measured), so the build pays for itself after about ten lives a year. An inline
+#: basis sent once with a few lives never pays for it; a stored basis builds at load
+#: (service/bases/catalogue.py)
 EXPANSION_AFTER_LIVES = 256
+EXPANSION_AFTER_LIVES_PER_YEAR = 10
+#: the years (or panel-years) a basis may expand on the request path, where building takes
+#: about 0.2 to 2.5 ms a year (measured; the stored bases build theirs at load within
+#: EXPANSION_BUDGET): a larger inline basis keeps the direct computation
+REQUEST_EXPANSION_BUDGET = 600
 _SUMMARY = [EXP_S, EXP_TAIL, EXP_TAIL + 1, EXP_CURTATE + 1, EXP_CURTATE + 2]
 
 # Binomial coefficients binom(k, i) for the moment shifts.
@@ -582,25 +588,39 @@ class YearGridModel(LifetimeModel):
         the direct computation is cheaper."""
         if self._exact_ages is None:
             self._direct_exact_lives += lives
-            if self._direct_exact_lives < EXPANSION_AFTER_LIVES:
+            cost = self._expansion_cost()
+            if cost > REQUEST_EXPANSION_BUDGET or self._direct_exact_lives < max(
+                EXPANSION_AFTER_LIVES, EXPANSION_AFTER_LIVES_PER_YEAR * cost
+            ):
                 return None
-        return self.exact_ages
+            self._build_expansions(REQUEST_EXPANSION_BUDGET)
+        return self._exact_ages
 
     @property
     def exact_ages(self) -> expansion.Expansion:
-        """The per-year expansions, built on first use (an inline basis valued only at whole
-        ages never pays for them). A basis whose years would take more than
-        EXPANSION_BUDGET panel evaluations to expand keeps the direct computation."""
+        """The per-year expansions, built on first use within EXPANSION_BUDGET (as a stored
+        basis is at load)."""
         if self._exact_ages is None:
-            valid = self._valuable_years()
+            self._build_expansions(EXPANSION_BUDGET)
+        return self._exact_ages
+
+    def _build_expansions(self, budget: int) -> None:
+        """Expand every year a life can be in; a basis whose years would take more than
+        ``budget`` (panel-)years to expand keeps the direct computation in all of them."""
+        valid = self._valuable_years()
+        if self._expansion_cost(valid) > budget:
+            valid = np.zeros_like(valid)
+        self._exact_ages = expansion.build(self._exact_age_functions, valid)
+
+    def _expansion_cost(self, valid: np.ndarray | None = None) -> int:
+        """The (panel-)years expanding this basis takes (kept once counted)."""
+        if getattr(self, "_cost_of_expanding", None) is None:
+            valid = self._valuable_years() if valid is None else valid
             panels = getattr(self, "year_panels", None)
-            cost = int(valid.sum()) if panels is None else int(
+            self._cost_of_expanding = int(valid.sum()) if panels is None else int(
                 np.sum(np.where(valid[0], panels[: valid.shape[1]], 0))
             )
-            if cost > EXPANSION_BUDGET:
-                valid = np.zeros_like(valid)
-            self._exact_ages = expansion.build(self._exact_age_functions, valid)
-        return self._exact_ages
+        return self._cost_of_expanding
 
     def _valuable_years(self) -> np.ndarray:
         """(R, L): the years of age in which a life of the basis can be: inside its row and
@@ -687,7 +707,7 @@ class YearGridModel(LifetimeModel):
                     e0, m1 = self.tail_moments[r, j, :2].tolist()
                     k1, k2 = self.curtate_table[r, j, 1:3].tolist()
                     return _summary_arrays(e0, 2.0 * m1, k1, k2)
-                expanded = self._expansions(1)
+                expanded = self._exact_ages  # built or not: the moments below decide
                 cell = -1 if expanded is None else expanded.cell_of_one(r, j)
                 if frac > 0.0 and cell >= 0:
                     s, u0, u1, v1, v2 = expanded.evaluate_one(cell, frac, _SUMMARY)
@@ -698,7 +718,7 @@ class YearGridModel(LifetimeModel):
                 tail = self.tail_moments[loc.row, loc.index, :2]
                 curt = self.curtate_table[loc.row, loc.index, 1:3]
                 return _summary(tail[:, 0], 2.0 * tail[:, 1], curt[:, 0], curt[:, 1])
-            expanded = self._expansions(int(np.count_nonzero(loc.frac > 0.0)))
+            expanded = self._exact_ages
             cell = None if expanded is None else expanded.cells(loc.row, loc.index)
             if cell is not None and np.all((loc.frac > 0.0) & (cell >= 0)):
                 v = expanded.evaluate(cell, loc.frac, _SUMMARY)

@@ -176,17 +176,41 @@ def test_whole_ages_still_use_the_whole_age_tables():
 def test_a_basis_builds_its_expansions_once_enough_exact_ages_pay_for_them():
     """A fresh basis values its first exact-age lives directly (building the expansions costs
     as much as some hundreds of them), then builds them; the answers agree either way."""
-    from service.core.lifetime import EXPANSION_AFTER_LIVES
+    from service.core.lifetime import (
+        EXPANSION_AFTER_LIVES,
+        EXPANSION_AFTER_LIVES_PER_YEAR,
+        REQUEST_EXPANSION_BUDGET,
+    )
 
-    m = _improved()
+    m = BUILDERS["table-udd"]()  # a fresh model (``model`` keeps one of each)
+    assert m._expansion_cost() <= REQUEST_EXPANSION_BUDGET
     age = np.array([47.63])
     before = m.expectation_summary(age, np.zeros(1))
     assert m._exact_ages is None
-    many, _ = _lives("improved-table", m, n=EXPANSION_AFTER_LIVES, seed=3)
-    m.expectation_summary(many, np.zeros(many.size))
+    enough = max(EXPANSION_AFTER_LIVES, EXPANSION_AFTER_LIVES_PER_YEAR * m._expansion_cost())
+    # the complete moments count each exact-age life once (the expectation summary counts it
+    # for the complete and the curtate moments)
+    many, _ = _lives("table-udd", m, n=enough - 3, seed=3)
+    m.complete_moments(many, np.zeros(many.size), [1])
+    assert m._exact_ages is None  # one life short
+    m.complete_moments(many[:1], np.zeros(1), [1])
     assert m._exact_ages is not None
     after = m.expectation_summary(age, np.zeros(1))
     for b, a in zip(before, after):
         assert _rel(a, b)[0] <= 2e-14
     direct = _direct(m, age, np.zeros(1))
     assert _rel(before[0], direct[0][:, 0])[0] <= 1e-15  # e̊ = E[T]: the direct computation
+
+
+def test_a_basis_too_large_to_expand_on_a_request_stays_direct():
+    """An improved table of 47 cohorts × 47 years would take about a second to expand on the
+    request path: it keeps the direct computation there, however many lives it values."""
+    from service.core.lifetime import REQUEST_EXPANSION_BUDGET
+
+    m = _improved()
+    assert m._expansion_cost() > REQUEST_EXPANSION_BUDGET
+    ages, _ = _lives("improved-table", m, n=N_LIVES, seed=5)
+    got = m.complete_moments(ages, np.zeros(ages.size), [1])[:, 0]
+    assert m._exact_ages is None
+    direct = _direct(m, ages, np.zeros(ages.size))[0][:, 0]
+    assert np.max(_rel(got, direct)) <= 1e-15
