@@ -456,3 +456,12 @@ def test_an_earlier_version_of_a_stored_basis_by_fingerprint(service):
             client.basis_version("thistlemoor-2024-annuitants", "sha256:" + "0" * 64)
     assert same == current
     assert caught.value.status == 404 and caught.value.type == "/problems/unknown-basis-version"
+
+
+def test_the_client_offers_the_service_s_age_conventions():
+    import typing
+
+    from service.client import AgeConventionArgument
+    from service.selection import AGE_CONVENTIONS
+
+    assert set(typing.get_args(AgeConventionArgument)) == set(AGE_CONVENTIONS)
