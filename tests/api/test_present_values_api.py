@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from shared_bases import SULT
 
-from service.core import laws
 from service.core.values import (
     Discount,
     Endowment,
@@ -15,7 +15,6 @@ from service.core.values import (
     present_values,
 )
 
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
 URL = "/v1/present-values"
 
 

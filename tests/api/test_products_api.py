@@ -9,12 +9,11 @@ import io
 
 import numpy as np
 import pytest
+from shared_bases import I5, SULT
 
-from service.core import laws
 from service.core.cash_flows import cash_flows
 from service.core.policy_values import policy_values
 from service.core.values import (
-    Discount,
     Endowment,
     LifeAnnuity,
     LifeInsurance,
@@ -22,8 +21,6 @@ from service.core.values import (
     Valuation,
 )
 
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
-I5 = Discount.constant(0.05)
 PAIR = {"type": "joint-life", "members": ["thistlemoor-2024-male", "thistlemoor-2024-female"]}
 
 

@@ -16,11 +16,10 @@ from __future__ import annotations
 import time
 
 import numpy as np
+from shared_bases import I5, SULT
 
-from service.core import laws
 from service.core.policy_values import policy_values
 from service.core.values import (
-    Discount,
     LifeAnnuity,
     LifeInsurance,
     PremiumPlan,
@@ -28,8 +27,6 @@ from service.core.values import (
     present_values,
 )
 
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
-I5 = Discount.constant(0.05)
 AGES = np.random.default_rng(15).uniform(20.0, 80.0, 10_000)  # exact (fractional) ages
 PRODUCT = [LifeAnnuity(frequency=12, escalation=0.03), LifeInsurance(decreasing=True, term=25)]
 PREMIUMS = [False, PremiumPlan(25, 12)]

@@ -10,11 +10,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from litestar.testing import TestClient
+from shared_bases import I5, SULT
 
 from service.api.app import create_app
-from service.core import laws
 from service.core.values import (
-    Discount,
     Endowment,
     LifeAnnuity,
     LifeInsurance,
@@ -23,9 +22,7 @@ from service.core.values import (
 )
 from service.settings import Settings
 
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
 AGE, DUR = np.array([60.0]), np.zeros(1)
-I5 = Discount.constant(0.05)
 QUOTE = [LifeAnnuity(), LifeInsurance(term=20), PureEndowment(term=10), Endowment(term=20),
          LifeAnnuity(deferral=5, guarantee=5)]
 PREMIUMS = [False, None, False, 20, False]

@@ -5,11 +5,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from shared_bases import I5, SULT
 
-from service.core import laws
 from service.core.errors import DomainError
 from service.core.values import (
-    Discount,
     Endowment,
     LifeAnnuity,
     LifeInsurance,
@@ -18,9 +17,6 @@ from service.core.values import (
     Valuation,
     default_premium_term,
 )
-
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
-I5 = Discount.constant(0.05)
 
 
 def _valuation(age, fast=True):

@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 import pytest
+from shared_bases import SULT
 
 from service.core import laws, tables
 from service.core.errors import DomainError
@@ -19,7 +20,6 @@ from service.core.values import (
     present_values,
 )
 
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
 TABLE = tables.LifeTable(60, [0.005 * 1.1**k for k in range(45)] + [1.0], "balducci")
 
 FAST_BENEFITS = [

@@ -5,22 +5,17 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from shared_bases import I5, SULT, TABLE
 
-from service.core import laws, tables
 from service.core.cash_flows import cash_flows
 from service.core.errors import DomainError
 from service.core.values import (
-    Discount,
     Endowment,
     LifeAnnuity,
     LifeInsurance,
     PremiumPlan,
     Valuation,
 )
-
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
-TABLE = tables.LifeTable(30, [0.001 * 1.1**k for k in range(70)] + [1.0], "udd")
-I5 = Discount.constant(0.05)
 
 
 def _valuation(model, ages):

@@ -7,12 +7,11 @@ import math
 
 import numpy as np
 import pytest
+from shared_bases import I5, SULT, TABLE
 
-from service.core import laws, tables
 from service.core.errors import DomainError
 from service.core.policy_values import policy_values
 from service.core.values import (
-    Discount,
     Endowment,
     LifeAnnuity,
     LifeInsurance,
@@ -20,10 +19,6 @@ from service.core.values import (
     PureEndowment,
     Valuation,
 )
-
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
-TABLE = tables.LifeTable(30, [0.001 * 1.1**k for k in range(70)] + [1.0], "udd")
-I5 = Discount.constant(0.05)
 
 
 def _valuation(model, ages, fast=True, discount=I5):

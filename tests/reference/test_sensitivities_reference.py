@@ -6,16 +6,15 @@ import math
 
 import numpy as np
 import pytest
+from shared_bases import SULT, TABLE
 
-from service.core import laws, several, tables
+from service.core import laws, several
 from service.core.errors import DomainError
 from service.core.sensitivities import Sensitivity, sensitivities
 from service.core.values import Discount, LifeAnnuity, LifeInsurance, Valuation
 
 MU = 0.02
 CONSTANT = laws.ConstantForce(MU)
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
-TABLE = tables.LifeTable(30, [0.001 * 1.1**k for k in range(70)] + [1.0], "udd")
 
 
 def _run(model, benefits, ask, rate=0.04, ages=(40.0,)):

@@ -5,13 +5,13 @@ from __future__ import annotations
 import mpmath
 import numpy as np
 import pytest
+from shared_bases import SULT
 
 from service.core import laws, several, tables
 from service.core.errors import DomainError
 from service.core.two_lives import ContingentInsurance, ReversionaryAnnuity
 from service.core.values import Discount, LifeAnnuity, LifeInsurance, Valuation
 
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
 GOMPERTZ = laws.Gompertz(B=5e-5, c=1.1)
 TABLE = tables.LifeTable(50, [0.004 * 1.09**k for k in range(55)] + [1.0], "udd")
 I4 = Discount.constant(0.04)

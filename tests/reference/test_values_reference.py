@@ -7,19 +7,16 @@ import math
 import mpmath
 import numpy as np
 import pytest
+from shared_bases import I5, SULT
 
 from service.core import laws
 from service.core.values import (
-    Discount,
     Endowment,
     LifeAnnuity,
     LifeInsurance,
     PureEndowment,
     benefit_values,
 )
-
-SULT = laws.Makeham(A=0.00022, B=2.7e-6, c=1.124)
-I5 = Discount.constant(0.05)
 
 
 def _one(model, age, benefit, discount=I5, fast=True):
