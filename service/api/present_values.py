@@ -48,11 +48,6 @@ from .value_schemas import (
 _DECODER = msgspec.json.Decoder(PresentValuesRequest)
 
 
-def _continuous(b) -> bool:
-    """A benefit valued by quadrature (continuous annuity, moment-of-death insurance)."""
-    return getattr(b, "timing", "") in ("continuous", "moment-of-death")
-
-
 def discount_of(interest: Interest) -> pv.Discount:
     given = [name for name in ("rate", "spot_rates") if getattr(interest, name) is not None]
     if len(given) != 1:
@@ -149,10 +144,10 @@ def check_work(age: np.ndarray, basis, discount: pv.Discount, items: list[QuoteI
         )
     # discrete payments are evaluations at scattered times; continuous benefits are
     # integrals on panels, like the moments; a net premium adds the premium annuity
-    discrete = sum(n * v for n, v, it in counts if not _continuous(it.benefit))
+    discrete = sum(n * v for n, v, it in counts if not pv.is_continuous(it.benefit))
     continuous = sum(
         n * v * cost.NODES * cost.kink_families(model) / 2.0
-        for n, v, it in counts if _continuous(it.benefit)
+        for n, v, it in counts if pv.is_continuous(it.benefit)
     ) + cost.integral_evaluations(model, horizon) * sum(it.premiums is not False for it in items)
     once = cost.seconds(
         model, lives, discrete, calls=4 * len(items), pointwise=True,

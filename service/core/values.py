@@ -1168,12 +1168,17 @@ def present_values(model: LifetimeModel, age, duration, discount: Discount,
     return out
 
 
+def is_continuous(b) -> bool:
+    """A benefit valued by quadrature (continuous annuity, moment-of-death insurance)."""
+    return getattr(b, "timing", "") in ("continuous", "moment-of-death")
+
+
 def payment_count(b: Benefit, horizon: float) -> int:
     """An upper bound on the payment times (or periods, or nodes / 16) per life, for budgets."""
     if isinstance(b, PureEndowment):
         return 1
     m = int(getattr(b, "frequency", 1))
-    if getattr(b, "timing", "") in ("continuous", "moment-of-death"):
+    if is_continuous(b):
         m = 2
     u = getattr(b, "deferral", 0.0)
     span = horizon - u if b.term is None else min(b.term, max(horizon - u, 0.0))
