@@ -45,12 +45,6 @@ def problem_bytes(kind: str, detail: str, status: int | None = None) -> bytes:
     )
 
 
-def invalid_http_body(message: str) -> bytes:
-    return problem_bytes(
-        "invalid-http", f"the request could not be read as HTTP/1.1: {message.rstrip('.')}"
-    )
-
-
 class ProblemH11Protocol(H11Protocol):
     """uvicorn's h11 protocol with a head size limit, a request timeout and problem+json."""
 
@@ -133,15 +127,14 @@ class ProblemH11Protocol(H11Protocol):
     # ---- answers written by the protocol itself
 
     def send_400_response(self, msg: str) -> None:
-        self._answer_and_close(400, "invalid-http", None, invalid_http_body(msg))
+        detail = f"the request could not be read as HTTP/1.1: {msg.rstrip('.')}"
+        self._answer_and_close(400, "invalid-http", detail)
 
-    def _answer_and_close(
-        self, status: int, kind: str, detail: str | None, body: bytes | None = None
-    ) -> None:
+    def _answer_and_close(self, status: int, kind: str, detail: str) -> None:
         self._stop_request_timer()
         if self.transport.is_closing():
             return
-        body = body if body is not None else problem_bytes(kind, detail or "", status)
+        body = problem_bytes(kind, detail, status)
         headers = security_headers(
             [
                 (b"content-type", PROBLEM_MEDIA_TYPE.encode("ascii")),
