@@ -269,8 +269,6 @@ class LifetimeModel(ABC):
         """(e̊, e, Var T, Var K), whole life or temporary: from the first two moments, with the
         variances that the difference E[X²] − E[X]² would leave with few digits recomputed
         as integrals of positive terms (:mod:`variance`)."""
-        from . import variance
-
         summary = self._moment_summary(age, duration, term)
         if not variance.cancels(summary):
             return summary
@@ -1027,3 +1025,8 @@ def check_horizon(n_years: int, kind: str) -> None:
             f"this {kind} keeps lives alive for more than {MAX_HORIZON:,} years, beyond what "
             f"the service computes; check its parameters",
         )
+
+
+# variance.py reads this module's quadrature constants, so it is imported once they exist
+# (here, not inside expectation_summary, where the import statement cost a microsecond a call)
+from . import variance  # noqa: E402
