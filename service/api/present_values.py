@@ -153,7 +153,10 @@ def check_work(age: np.ndarray, basis, discount: pv.Discount, items: list[QuoteI
         model, lives, discrete, calls=4 * len(items), pointwise=True,
         output_values=3 * lives * len(items),
     ) + cost.seconds(model, lives, continuous, needs_horizon=False, calls=0)
-    return once * repeats
+    # the exact-age tables a first valuation at this rate builds (once, then kept)
+    benefits = [it.benefit for it in items] + [
+        it.premiums.annuity() for it in items if isinstance(it.premiums, pv.PremiumPlan)]
+    return once * repeats + pv.exact_build_seconds(model, discount, benefits)
 
 
 def _sensitivity_result(shocks, k: int, i: int) -> BenefitSensitivities | None:

@@ -33,6 +33,9 @@ MAX_LEVEL = 3
 CHECK_RTOL = 2e-14
 #: values below this are compared absolutely (survival that has underflowed to nothing)
 TINY = 1e-290
+#: where, as a fraction of a segment, a left-continuous expansion is checked inside its left
+#: edge (the one-sided limit there)
+LEFT_EDGE_INSIDE = 1e-9
 #: segments whose coefficients one-life lookups keep as plain floats
 MAX_CACHED_BLOCKS = 4096
 #: lives per block when evaluating, so that the working arrays stay in cache
@@ -89,6 +92,8 @@ class Expansion:
     count: np.ndarray
     coef: np.ndarray
     degree: int
+    #: per cell, the largest relative error found at its check points
+    error: np.ndarray | None = None
     _blocks: dict = field(default_factory=dict, repr=False)  # one life's lookups, as floats
 
     def __post_init__(self):
@@ -99,7 +104,8 @@ class Expansion:
 
     @property
     def nbytes(self) -> int:
-        return int(self.cell_of.nbytes + self.first.nbytes + self.count.nbytes + self.coef.nbytes)
+        return int(self.cell_of.nbytes + self.first.nbytes + self.count.nbytes + self.coef.nbytes
+                   + (0 if self.error is None else self.error.nbytes))
 
     def cells(self, row, index) -> np.ndarray:
         """The cell of each life (−1 where the year has no expansion)."""
@@ -155,14 +161,23 @@ Exact = Callable[[np.ndarray, np.ndarray], np.ndarray]
 """exact(cells, fractions) → (n_cells, n_fractions, Q): the direct values in the given cells."""
 
 
-def _fit(exact: Exact, cells: np.ndarray, level: int, degree: int):
-    """Fit every cell on 2**level segments: (coef (C, S, D+1, Q), ok (C,))."""
-    n_seg = 2**level
+def _fit(exact: Exact, cells: np.ndarray, n_seg: int, degree: int,
+         left_continuous: bool = False):
+    """Fit every cell on ``n_seg`` equal segments: (coef (C, S, D+1, Q), ok (C,), and the
+    largest relative error at the check points (C,)).
+
+    ``left_continuous``: the functions may jump at the segments' edges, where they take the
+    value from the left; each segment's polynomial is then checked just inside its left edge
+    and exactly at its right edge (see :func:`build`)."""
     nodes = (_nodes(degree) + 1.0) * 0.5
     checks = (_checks(degree) + 1.0) * 0.5
     seg = np.arange(n_seg, dtype=float)[:, None]
     f_nodes = ((seg + nodes[None, :]) / n_seg).ravel()
-    f_checks = np.clip(((seg + checks[None, :]) / n_seg).ravel(), 1e-12, 1.0 - 1e-12)
+    if left_continuous:
+        checks[0] = LEFT_EDGE_INSIDE
+        f_checks = ((seg + checks[None, :]) / n_seg).ravel()
+    else:
+        f_checks = np.clip(((seg + checks[None, :]) / n_seg).ravel(), 1e-12, 1.0 - 1e-12)
     values = exact(cells, np.concatenate([f_nodes, f_checks]))  # (C, F, Q)
     n_q = values.shape[-1]
     at_nodes = values[:, : f_nodes.size].reshape(cells.size, n_seg, degree + 1, n_q)
@@ -177,20 +192,30 @@ def _fit(exact: Exact, cells: np.ndarray, level: int, degree: int):
     good = np.isfinite(want) & np.isfinite(got) & ((err <= bound) | (np.abs(want) < TINY))
     good &= np.all(np.isfinite(at_nodes), axis=2)[:, :, None, :]
     ok = good.reshape(cells.size, -1).all(axis=1)
-    return coef, ok
+    with np.errstate(invalid="ignore", divide="ignore"):
+        rel = np.where(np.abs(want) < TINY, 0.0, err / np.abs(want))
+    worst = np.nan_to_num(rel, nan=np.inf).reshape(cells.size, -1).max(axis=1, initial=0.0)
+    return coef, ok, worst
 
 
-def build(exact: Exact, valid: np.ndarray) -> Expansion:
-    """The expansions of every valid cell (a boolean (rows × years) grid), each checked."""
+def build(exact: Exact, valid: np.ndarray, segments: int = 1, degree: int = DEGREE,
+          max_level: int = MAX_LEVEL, left_continuous: bool = False) -> Expansion:
+    """The expansions of every valid cell (a boolean (rows × years) grid), each checked.
+
+    A cell is tried on ``segments`` × 2ᵏ equal segments, k = 0..max_level (``segments`` > 1
+    when the functions have known kinks at multiples of 1/segments of the year).
+    ``left_continuous``: the functions may jump at multiples of 1/segments, taking the value
+    from the left there (a payment due exactly when survival drops); a lookup at an edge then
+    evaluates the segment to its left (exact_values.py)."""
     cell_ids = np.flatnonzero(valid.ravel())
-    degree = DEGREE
-    pieces, todo = {}, cell_ids
-    for level in range(MAX_LEVEL + 1):
+    pieces, errors, todo = {}, {}, cell_ids
+    for level in range(max_level + 1):
         if todo.size == 0:
             break
-        coef, ok = _fit(exact, todo, level, degree)
+        coef, ok, worst = _fit(exact, todo, segments * 2**level, degree, left_continuous)
         for i in np.flatnonzero(ok):
             pieces[int(todo[i])] = coef[i]
+            errors[int(todo[i])] = float(worst[i])
         todo = todo[~ok]
     cell_of = np.full(valid.size, -1, dtype=np.int64)
     first, count, blocks = [], [], []
@@ -210,4 +235,5 @@ def build(exact: Exact, valid: np.ndarray) -> Expansion:
         count=np.array(count, dtype=float),
         coef=np.ascontiguousarray(coef),
         degree=degree,
+        error=np.array([errors[cell] for cell in sorted(pieces)], dtype=float),
     )

@@ -27,6 +27,7 @@ import math
 
 import numpy as np
 
+from . import exact_values
 from . import values as pv
 from .amounts import discounted, year_index
 from .errors import DomainError, fmt
@@ -81,26 +82,48 @@ def policy_values(valuation: pv.Valuation, b, durations, premium: np.ndarray | N
     if not valued:
         valuation.moments(b)  # the benefit's checks (and a value that converges)
     t = check_durations(b, durations, valuation.horizon)
-    out = future_value(valuation, b, t)
+    h_t = in_force(valuation, t)
+    out = future_value(valuation, b, t, h_t)
     if premium is not None:
-        out = out - premium[:, None] * future_value(valuation, plan.annuity(), t)
+        out = out - premium[:, None] * future_value(valuation, plan.annuity(), t, h_t)
     return out
 
 
-def future_value(valuation: pv.Valuation, b, t: np.ndarray) -> np.ndarray:
-    """PV_t of the payments of ``b`` due at or after t, given the status is in force at t."""
-    model, age, duration, discount = (valuation.model, valuation.age, valuation.duration,
-                                      valuation.discount)
-    h_t = model.cumulative_hazard(age, duration, t)
+def in_force(valuation: pv.Valuation, t: np.ndarray) -> np.ndarray:
+    """The cumulative hazard to each duration (N, D); a DomainError naming the duration by
+    which a life's status has surely ended."""
+    h_t = valuation.model.cumulative_hazard(valuation.age, valuation.duration, t)
     s_t = pv._survival_from(h_t)
     if np.any(s_t < MIN_SURVIVAL):
         k = int(np.argwhere(s_t < MIN_SURVIVAL)[0][1])
         raise DomainError(f"policy_value_durations[{k}]",
                           f"the status has surely ended by duration {fmt(t[k])}")
-    total = np.zeros((age.shape[0], t.size))
-    for part in pv.parts(b):
-        total += _part_value(valuation, part, t, h_t)
+    return h_t
+
+
+def future_value(valuation: pv.Valuation, b, t: np.ndarray, h_t: np.ndarray | None = None
+                 ) -> np.ndarray:
+    """PV_t of the payments of ``b`` due at or after t, given the status is in force at t
+    (``h_t``: :func:`in_force`, when the caller has it)."""
+    age, discount = valuation.age, valuation.discount
+    h_t = in_force(valuation, t) if h_t is None else h_t
+    s_t = pv._survival_from(h_t)
+    total = _exact_value(valuation, b, t)
+    if total is None:
+        total = np.zeros((age.shape[0], t.size))
+        for part in pv.parts(b):
+            total += _part_value(valuation, part, t, h_t)
     return total / (s_t * discount.v(t)[None, :])
+
+
+def _exact_value(valuation: pv.Valuation, b, t: np.ndarray) -> np.ndarray | None:
+    """The payments to come from the exact-age tables (exact_values.py), when the basis, the
+    interest and the benefit are on their path and the tables are built."""
+    lives = valuation._exact
+    if lives is None or not exact_values.on_path(b, lives.rate):
+        return None
+    return exact_values.future_values(lives, valuation.age, valuation.duration, b, t,
+                                      valuation.tables_for(lives))
 
 
 def _part_value(valuation: pv.Valuation, b, t, h_t) -> np.ndarray:

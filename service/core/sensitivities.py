@@ -102,8 +102,8 @@ def sensitivities(model, age, duration, discount: pv.Discount, benefits, base_va
     """
     mortality = up = down = dur = conv = None
     if ask.kind is not None:
-        shocked = shocked_model(model, ask.kind, ask.size)
-        mortality = _values(shocked, age, duration, discount, benefits)
+        shocked = shocked_model(model, ask.kind, ask.size)  # used once: no exact-age tables
+        mortality = _values(shocked, age, duration, discount, benefits, tables=False)
     if ask.shift is not None:
         h = ask.shift
         if not (math.isfinite(h) and 0.0 < h <= MAX_SHIFT):
@@ -121,8 +121,8 @@ def sensitivities(model, age, duration, discount: pv.Discount, benefits, base_va
     return Sensitivities(mortality, up, down, dur, conv)
 
 
-def _values(model, age, duration, discount, benefits) -> list[np.ndarray]:
-    valuation = pv.Valuation(model, age, duration, discount)
+def _values(model, age, duration, discount, benefits, tables: bool = True) -> list[np.ndarray]:
+    valuation = pv.Valuation(model, age, duration, discount, tables=tables)
     out = []
     for i, b in enumerate(benefits):
         try:

@@ -64,7 +64,8 @@ def _end(model, age, duration, term, discount):
     the term or the discount floor; whole-life values must converge there."""
     horizon = np.broadcast_to(np.asarray(model.horizon(age, duration), float), age.shape)
     end = pv._end_of_cover(horizon, 0.0, term, discount)
-    pv._check_tail(model, age, duration, end, discount, term is None or bool(np.any(end < term)))
+    pv._check_tail(model, age, duration, end, discount, term is None or bool(np.any(end < term)),
+                  term_end=term)
     return end
 
 
@@ -172,8 +173,8 @@ class ContingentInsurance:
                 other = (_survival(my, ay[i], dy[i], t) if self.order == "first"
                          else _dead(my, ay[i], dy[i], t))
                 weight = dens * other
-                first[i] += weight @ (w * bv)
-                second[i] += weight @ (w * bv * bv)
+                first[i] += pv.row_dot(weight, w * bv)
+                second[i] += pv.row_dot(weight, w * bv * bv)
         return first, second
 
 

@@ -50,10 +50,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import amounts
+from . import amounts, exact_values
 from .amounts import discounted, stream_cumulative, year_index
 from .errors import ComputationLimitError, DomainError, fmt
-from .lifetime import GL_NODES, GL_WEIGHTS, LifetimeModel, YearGridModel
+from .lifetime import GL_NODES, GL_WEIGHTS, LifetimeModel, Located, YearGridModel
 
 #: most payment times (or periods) per life in one benefit
 MAX_PAYMENT_TIMES = 20_000
@@ -365,6 +365,23 @@ def _survival_from(h: np.ndarray) -> np.ndarray:
     return np.where(np.isfinite(h), s, 0.0)
 
 
+#: terms per block of a per-life sum (see row_dot)
+ROW_BLOCK = 128
+
+
+def row_dot(a: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """a @ w for each row (life) on its own, with the same bits whatever the other rows and
+    however many trailing zero terms the batch's longer lives add: the products are summed
+    in fixed blocks of ROW_BLOCK (numpy's pairwise sum of a full block), then the block sums
+    in order. A matrix product's blocking, and a pairwise sum's split, depend on the shape."""
+    n, t = a.shape
+    blocks = -(-t // ROW_BLOCK)
+    prod = np.zeros((n, blocks * ROW_BLOCK))
+    np.multiply(a, w, out=prod[:, :t])
+    sums = prod.reshape(n, blocks, ROW_BLOCK).sum(axis=2)
+    return np.cumsum(sums, axis=1)[:, -1] if blocks else np.zeros(n)
+
+
 def _chunks(n_lives: int, n_values: int):
     step = max(1, CHUNK_ELEMENTS // max(n_values, 1))
     for lo in range(0, n_lives, step):
@@ -397,37 +414,69 @@ def _check_count(count: float, field: str = "") -> int:
 
 
 def _check_tail(model, age, duration, t_end: np.ndarray, discount: Discount, open_ended: bool,
-                b=None, start: float = 0.0):
+                b=None, start: float = 0.0, term_end: float | None = None):
     """Whole-life values stop at the horizon: survival there, discounted (and escalated),
-    must be negligible."""
+    must be negligible. With ``term_end``, only for the lives whose cover stops before it
+    (the others stop at the end of their term, where survival need not be negligible)."""
     if not open_ended:
         return
+    if term_end is not None:
+        stops_early = np.asarray(t_end) < term_end
+        age, duration = age[stops_early], duration[stops_early]
+        t_end = np.asarray(t_end)[stops_early]
     g = amounts.growth(b)
-    t_end = np.asarray(t_end, float)
-    ends = np.unique(t_end)
-    for t in ends:
-        sel = t_end == t
-        h = model.cumulative_hazard(age[sel], duration[sel], np.array([t]))[:, 0]
-        with np.errstate(over="ignore", invalid="ignore"):
-            lv = float(discount.log_v(t))
-            lv = lv + g * max(float(t) - start, 0.0)
-            log_w = -h + max(lv, 2.0 * lv) + math.log1p(t)
-        log_w = np.where(np.isnan(log_w), -np.inf, log_w)
-        if np.any(log_w > math.log(TAIL_TOLERANCE)):
-            if g > 0.0:
-                raise DomainError(
-                    "escalation",
-                    "at this escalation the present values do not converge on this basis: "
-                    "escalated, discounted survival is still not negligible where the basis "
-                    f"stops (duration {fmt(round(float(t), 6))} years); use a lower "
-                    "escalation or a term",
-                )
-            raise DomainError(
-                "interest",
-                "at this interest the present values do not converge on this basis: "
-                "discounted survival is still not negligible where the basis stops "
-                f"(duration {fmt(round(float(t), 6))} years); use a higher rate",
-            )
+    t_end = np.broadcast_to(np.asarray(t_end, float), np.shape(age))
+    if t_end.size == 0:
+        return
+    # each life at its own end, in one call
+    h = model.span_hazard(age, duration, np.zeros(t_end.shape), t_end)
+    with np.errstate(over="ignore", invalid="ignore"):
+        lv = discount.log_v(t_end) + g * np.maximum(t_end - start, 0.0)
+        log_w = -h + np.maximum(lv, 2.0 * lv) + np.log1p(t_end)
+    bad = np.nan_to_num(log_w, nan=-np.inf) > math.log(TAIL_TOLERANCE)
+    if np.any(bad):
+        _not_converging(g, float(np.min(t_end[bad])))
+
+
+def _cover_end(horizon: np.ndarray, b, discount: Discount) -> np.ndarray:
+    """Where each life's cover stops mattering: the term, the horizon or the discount floor
+    (never before the end of a guarantee)."""
+    u = getattr(b, "deferral", 0.0)
+    end = _end_of_cover(horizon, u, b.term, discount, b)
+    if isinstance(b, LifeAnnuity):
+        end = np.maximum(end, u + b.guarantee)
+    return end
+
+
+def _check_converges(model, age, duration, end: np.ndarray, b, discount: Discount) -> None:
+    """Whole-life (or longer than the basis) cover must have negligible discounted survival
+    where the basis stops (:func:`_check_tail`), for the lives whose cover reaches there."""
+    u = getattr(b, "deferral", 0.0)
+    _check_tail(model, age, duration, end, discount,
+                b.term is None or bool(np.any(end < u + b.term)), b, u, _term_end(b))
+
+
+def _term_end(b) -> float | None:
+    """When the cover of a benefit with a term ends (None for whole life)."""
+    return None if b.term is None else getattr(b, "deferral", 0.0) + b.term
+
+
+def _not_converging(g: float, t: float):
+    """The DomainError for whole-life values whose discounted survival is not negligible where
+    the basis stops (duration t)."""
+    if g > 0.0:
+        raise DomainError(
+            "escalation",
+            "at this escalation the present values do not converge on this basis: "
+            "escalated, discounted survival is still not negligible where the basis "
+            f"stops (duration {fmt(round(t, 6))} years); use a lower escalation or a term",
+        )
+    raise DomainError(
+        "interest",
+        "at this interest the present values do not converge on this basis: "
+        "discounted survival is still not negligible where the basis stops "
+        f"(duration {fmt(round(t, 6))} years); use a higher rate",
+    )
 
 
 # ---- the general (reference) path ---------------------------------------------------------------
@@ -444,8 +493,8 @@ def _discrete_stream(model, age, duration, times, amounts, tau):
     for sl in _chunks(n, tau.size):
         a, d = _lives_slice(age, duration, sl)
         s = _survival_from(model.cumulative_hazard(a, d, tau))
-        v1[sl] = s @ w1
-        v2[sl] = s @ w2
+        v1[sl] = row_dot(s, w1)
+        v2[sl] = row_dot(s, w2)
     return v1, v2
 
 
@@ -478,21 +527,17 @@ def _annuity_payments(b: LifeAnnuity, end: float, discount: Discount):
 def _annuity_general(model, age, duration, horizon, b: LifeAnnuity, discount: Discount):
     if b.timing == "continuous":
         return _continuous_annuity(model, age, duration, horizon, b, discount)
-    end = _end_of_cover(horizon, b.deferral, b.term, discount, b)
-    end = np.maximum(end, b.deferral + b.guarantee)
-    top = float(np.max(end))
-    t, paid, tau = _annuity_payments(b, top, discount)
-    _check_tail(model, age, duration, end, discount,
-                b.term is None or bool(np.any(end < b.deferral + b.term)), b, b.deferral)
+    end = _cover_end(horizon, b, discount)
+    t, paid, tau = _annuity_payments(b, float(np.max(end)), discount)
+    _check_converges(model, age, duration, end, b, discount)
     return _discrete_stream(model, age, duration, t, paid, tau)
 
 
 def _insurance_general(model, age, duration, horizon, b, discount: Discount):
     """Death benefit over [u, u + n) (n may be None): E[Z], E[Z²]."""
     u = getattr(b, "deferral", 0.0)
-    end = _end_of_cover(horizon, u, b.term, discount, b)
-    _check_tail(model, age, duration, end, discount,
-                b.term is None or bool(np.any(end < u + b.term)), b, u)
+    end = _cover_end(horizon, b, discount)
+    _check_converges(model, age, duration, end, b, discount)
     if b.timing == "moment-of-death":
         return _continuous_insurance(model, age, duration, u, end, b, discount)
     edges, w1 = _death_periods(b, float(np.max(end)), discount)
@@ -507,8 +552,8 @@ def _insurance_general(model, age, duration, horizon, b, discount: Discount):
             s0 = _survival_from(h[:, :-1])
             dq = -np.expm1(-(h[:, 1:] - h[:, :-1]))
         p = np.where(s0 > 0.0, s0 * np.nan_to_num(dq, nan=1.0), 0.0)
-        z1[sl] = p @ w1
-        z2[sl] = p @ w2
+        z1[sl] = row_dot(p, w1)
+        z2[sl] = row_dot(p, w2)
     return z1, z2
 
 
@@ -619,10 +664,8 @@ def continuous_nodes(model, age, duration, lo: float, end: np.ndarray, b, discou
 
 def _continuous_annuity(model, age, duration, horizon, b: LifeAnnuity, discount: Discount):
     u, g = b.deferral, b.guarantee
-    end = _end_of_cover(horizon, u, b.term, discount, b)
-    end = np.maximum(end, u + g)
-    _check_tail(model, age, duration, end, discount,
-                b.term is None or bool(np.any(end < u + b.term)), b, u)
+    end = _cover_end(horizon, b, discount)
+    _check_converges(model, age, duration, end, b, discount)
     n = age.shape[0]
     v1 = np.zeros(n)
     v2 = np.zeros(n)
@@ -636,8 +679,8 @@ def _continuous_annuity(model, age, duration, horizon, b: LifeAnnuity, discount:
         cum = stream_cumulative(b, discount, t, u)
         for sl in _chunks(idx.size, t.size):
             s = _survival_from(model.cumulative_hazard(a[sl], d[sl], t))
-            v1[idx[sl]] += s @ (w * cv)
-            v2[idx[sl]] += s @ (w * 2.0 * cv * cum)
+            v1[idx[sl]] += row_dot(s, w * cv)
+            v2[idx[sl]] += row_dot(s, w * 2.0 * cv * cum)
     return v1, v2
 
 
@@ -657,8 +700,8 @@ def _continuous_insurance(model, age, duration, u, end, b, discount: Discount):
         bv = discounted(b, year_index(t, u), discount.log_v(t))
         for sl in _chunks(idx.size, t.size):
             dens = density_at(model, a[sl], d[sl], t)
-            z1[idx[sl]] += dens @ (w * bv)
-            z2[idx[sl]] += dens @ (w * bv * bv)
+            z1[idx[sl]] += row_dot(dens, w * bv)
+            z2[idx[sl]] += row_dot(dens, w * bv * bv)
     return z1, z2
 
 
@@ -817,7 +860,8 @@ class _FastLives:
             j0 = min(self.j + int(start), self.last)
             j1 = min(self.j + int(start) + n, self.last)
             gap = self.lam_row[j1] - self.lam_row[j0]
-            return tab.v ** (power * n) * (math.exp(-gap) if gap < 745.0 else 0.0)
+            # numpy's exp, as in a batch, for the same bits
+            return tab.v ** (power * n) * (float(np.exp(-gap)) if gap < 745.0 else 0.0)
         j0 = np.minimum(self.j + int(start), self.last)
         j1 = np.minimum(self.j + int(start) + n, self.last)
         return tab.v ** (power * n) * np.exp(tab.lam_safe[self.r, j0] - tab.lam_safe[self.r, j1])
@@ -920,16 +964,35 @@ def _benefit_on_fast_path(b: Benefit, rate: float) -> bool:
     return _is_whole(b.term)
 
 
-def _fast_lives(model, age, duration, discount: Discount) -> _FastLives | None:
-    """The fast-path lookups when the model, the interest and the lives allow them."""
+def _fast_path_lives(model, age, duration, discount: Discount):
+    """The lives placed on the year grid when the model and the interest allow the tables
+    (a year-grid model at a constant rate ≥ 0); None otherwise."""
     if discount.rate is None or discount.rate < FAST_RATES_FROM or not fast_path_model(model):
         return None
     if np.ndim(age) != 1:
         return None
-    loc = model._locate(age, np.broadcast_to(duration, age.shape))
-    if np.any(loc.frac != 0.0):
-        return None
-    return _FastLives(model, loc, float(discount.rate))
+    return model._locate(age, np.broadcast_to(duration, age.shape))
+
+
+def _surely_converges(model, lives: exact_values.ExactLives, horizon: np.ndarray) -> bool:
+    """Whether the convergence check must pass for these lives on the tables' path (rate ≥ 0,
+    escalation at most the rate, so discounting never grows): survival from each life to
+    the end of its row's grid is already below TAIL_TOLERANCE / (1 + horizon)."""
+    with np.errstate(invalid="ignore", over="ignore"):
+        log_w = lives.hazard(0) - model.lam[lives.loc.row, -1] + np.log1p(horizon)
+    return bool(np.all(np.nan_to_num(log_w, nan=0.0, neginf=-np.inf) < math.log(TAIL_TOLERANCE)))
+
+
+def _subset(loc: Located, index) -> Located:
+    return Located(loc.row[index], loc.index[index], loc.frac[index])
+
+
+def exact_build_seconds(model, discount: Discount, benefits) -> float:
+    """The estimated seconds of the exact-age table builds a valuation would start now (for
+    a request's work estimate)."""
+    if discount.rate is None or discount.rate < FAST_RATES_FROM or not fast_path_model(model):
+        return 0.0
+    return exact_values.build_seconds(model, float(discount.rate), benefits)
 
 
 def _fast_values(lives: _FastLives, n_lives: int, b: Benefit):
@@ -1023,9 +1086,18 @@ def past_the_limit(what: str, i: int, horizon: np.ndarray) -> str:
 
 
 class Valuation:
-    """One request's lives on one basis at one interest: what every benefit shares."""
+    """One request's lives on one basis at one interest: what every benefit shares.
 
-    def __init__(self, model: LifetimeModel, age, duration, discount: Discount, fast: bool = True):
+    Each life takes its own route, whatever the other lives of the request: a life at a
+    whole age, for a benefit the whole-age tables value, takes those (:class:`_FastLives`);
+    any other life on a year-grid basis at a constant rate takes the exact-age tables
+    (exact_values.py) where they are built; the rest take the general path."""
+
+    def __init__(self, model: LifetimeModel, age, duration, discount: Discount, fast: bool = True,
+                 tables: bool = True):
+        """``fast=False``: the general path for every life (the reference); ``tables=False``:
+        no exact-age tables (a throwaway basis, such as a sensitivity's shocked one, would
+        build them for one use)."""
         self.model = model
         self.age = np.asarray(age, float)
         self.duration = np.broadcast_to(np.asarray(duration, float), self.age.shape)
@@ -1034,7 +1106,24 @@ class Valuation:
         self.horizon = np.broadcast_to(
             np.asarray(model.horizon(self.age, self.duration), float), (n,)
         )
-        self.fast = _fast_lives(model, self.age, self.duration, discount) if fast else None
+        self.fast = None  # the whole-age lives, on the whole-age tables
+        self._exact = None  # every life, for the exact-age tables
+        self._rest = None  # the other lives, when some are at whole ages
+        loc = _fast_path_lives(model, self.age, self.duration, discount) if fast else None
+        if loc is not None:
+            rate = float(discount.rate)
+            whole = loc.frac == 0.0
+            if tables:
+                self._exact = exact_values.ExactLives(model, loc, rate)
+            if whole.all():
+                self.fast, self._whole = _FastLives(model, loc, rate), slice(None)
+            elif whole.any():
+                self._whole, others = np.flatnonzero(whole), np.flatnonzero(~whole)
+                self.fast = _FastLives(model, _subset(loc, self._whole), rate)
+                if tables:
+                    self._rest = (exact_values.ExactLives(model, _subset(loc, others), rate),
+                                  others)
+        self._tables: dict = {}
         self._premium_annuities: dict = {}
 
     def moments(self, b: Benefit) -> tuple[np.ndarray, np.ndarray]:
@@ -1044,21 +1133,22 @@ class Valuation:
             return b.moments(self)
         check_benefit(b, self.discount)
         _check_reach(self.horizon, b)
-        model, age, duration, horizon, discount = (
-            self.model, self.age, self.duration, self.horizon, self.discount,
-        )
+        n = self.age.shape[0]
         if self.fast is not None and _benefit_on_fast_path(b, self.fast.rate):
-            first, second = _fast_values(self.fast, age.shape[0], b)
-        elif isinstance(b, LifeAnnuity):
-            first, second = _annuity_general(model, age, duration, horizon, b, discount)
-        elif isinstance(b, LifeInsurance):
-            first, second = _insurance_general(model, age, duration, horizon, b, discount)
-        elif isinstance(b, PureEndowment):
-            first, second = _pure_endowment(model, age, duration, b.term, discount)
+            got = _fast_values(self.fast, self.fast.loc.row.size, b)
+            if not isinstance(self._whole, slice):  # the other lives by their own route
+                others = np.setdiff1d(np.arange(n), self._whole)
+                first, second = np.empty(n), np.empty(n)
+                first[self._whole], second[self._whole] = got
+                first[others], second[others] = (
+                    self._general_moments(b, others) if self._rest is None
+                    else self._exact_moments(b, self._rest[0], others))
+                got = first, second
+        elif self._exact is not None:
+            got = self._exact_moments(b, self._exact, slice(None))
         else:
-            z1, z2 = _insurance_general(model, age, duration, horizon, b, discount)
-            e1, e2 = _pure_endowment(model, age, duration, b.term, discount)
-            first, second = z1 + e1, z2 + e2
+            got = self._general_moments(b, slice(None))
+        first, second = got
         if not (np.all(np.isfinite(first)) and np.all(np.isfinite(second))):
             field = "escalation" if getattr(b, "escalation", 0.0) else "interest"
             raise DomainError(
@@ -1068,6 +1158,55 @@ class Valuation:
                 "discounting make them fall; use a lower escalation, a higher rate or a term",
             )
         return first, second
+
+    def _exact_moments(self, b: Benefit, lives: exact_values.ExactLives, index):
+        """The lives at ``index`` by the exact-age tables (exact_values.py) where they are
+        built, and by the general path where a life's years have no polynomials, the
+        benefit is not on the tables' path, or the tables are not (yet) worth building."""
+        if not exact_values.on_path(b, lives.rate):
+            return self._general_moments(b, index)
+        model = self.model
+        if not _surely_converges(model, lives, self.horizon[index]):
+            _check_converges(model, self.age[index], self.duration[index],
+                             _cover_end(self.horizon[index], b, self.discount), b,
+                             self.discount)
+
+        got = exact_values.exact_moments(lives, b, self.tables_for(lives))
+        if got is None:
+            return self._general_moments(b, index)
+        first, second = got
+        missing = np.flatnonzero(~(np.isfinite(first) & np.isfinite(second)))
+        if missing.size:
+            first, second = first.copy(), second.copy()
+            at = missing if isinstance(index, slice) else index[missing]
+            first[missing], second[missing] = self._general_moments(b, at)
+        return first, second
+
+    def tables_for(self, lives: exact_values.ExactLives):
+        """tables_for(kind, m, e) for these lives: the exact-age tables, asked for once per
+        request and lives, however many benefits and premiums use them."""
+
+        def tables_for(kind, m, escalation):
+            key = (exact_values.TableKey(lives.rate, int(m), float(escalation), kind), lives)
+            if key not in self._tables:
+                self._tables[key] = exact_values.CACHE.get(self.model, key[0])
+            return self._tables[key]
+
+        return tables_for
+
+    def _general_moments(self, b: Benefit, lives):
+        """The general (reference) path for the given lives (an index array or a slice)."""
+        model, discount = self.model, self.discount
+        age, duration, horizon = self.age[lives], self.duration[lives], self.horizon[lives]
+        if isinstance(b, LifeAnnuity):
+            return _annuity_general(model, age, duration, horizon, b, discount)
+        if isinstance(b, LifeInsurance):
+            return _insurance_general(model, age, duration, horizon, b, discount)
+        if isinstance(b, PureEndowment):
+            return _pure_endowment(model, age, duration, b.term, discount)
+        z1, z2 = _insurance_general(model, age, duration, horizon, b, discount)
+        e1, e2 = _pure_endowment(model, age, duration, b.term, discount)
+        return z1 + e1, z2 + e2
 
     def values(self, b: Benefit, premium_term=False) -> BenefitValues:
         """E[PV], E[PV²] and the standard deviation per unit of benefit for each life.

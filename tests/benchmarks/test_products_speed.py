@@ -75,3 +75,25 @@ def test_policy_value_vector_against_one_present_value():
     print(f"\none present value (with its premium) for one life: {single * 1e6:.0f} µs")
     print(f"40 policy values for one life: {vector * 1e6:.0f} µs "
           f"({vector / single:.1f}× one present value; target ≤ 2×)")
+
+
+def test_exact_age_tables_of_the_stored_bases():
+    """The build time and size of the present-value tables a quote uses, per stored basis."""
+    from service.bases.catalogue import Catalogue
+    from service.core import exact_values
+
+    catalogue = Catalogue()
+    catalogue.load()
+    for basis in catalogue.stored():
+        for kind, m in (("advance", 12), ("advance", 1), ("increasing", 1), ("insurance", 12)):
+            key = exact_values.TableKey(0.05, m, 0.0, kind)
+            built = [None]
+
+            def build(key=key, model=basis.model, built=built):
+                built[0] = exact_values.build_tables(model, key)
+
+            seconds = _best(build, 2)
+            e = built[0].expansion
+            print(f"\n[{basis.id}] {kind} m={m} at 5%: {seconds * 1e3:.0f} ms, "
+                  f"{built[0].nbytes / 1e6:.2f} MB, {int((e.cell_of >= 0).sum())} years expanded "
+                  f"on {e.coef.shape[0]} segments of degree {e.degree}")

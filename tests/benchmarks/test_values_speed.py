@@ -22,7 +22,7 @@ from service.core.values import (
 )
 from service.settings import Settings
 
-AGE, DUR = np.array([60.0]), np.zeros(1)
+AGE, DUR = np.array([60.37]), np.zeros(1)  # an exact age, as quote systems send
 QUOTE = [LifeAnnuity(), LifeInsurance(term=20), PureEndowment(term=10), Endowment(term=20),
          LifeAnnuity(deferral=5, guarantee=5)]
 PREMIUMS = [False, None, False, 20, False]
@@ -33,7 +33,7 @@ QUOTE_JSON = [
     {"type": "endowment", "term": 20, "net_premium": {"premium_term": 20}},
     {"type": "life-annuity", "deferral": 5, "guarantee": 5},
 ]
-LIFE = [{"age": 60}]
+LIFE = [{"age": 60.37}]
 
 
 @pytest.fixture(scope="module")
