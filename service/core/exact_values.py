@@ -465,6 +465,8 @@ class ExactLives:
         self.scalar = self.n == 1
         self._hazard: dict = {}
         self._lookups: dict = {}
+        #: whether every life's survival to the end of its grid is negligible (values.py)
+        self.converges: bool | None = None
         #: per life, the largest relative error of the lookups made for the benefit in hand
         self.error = 0.0 if self.scalar else np.zeros(self.n)
 

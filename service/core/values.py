@@ -1166,7 +1166,9 @@ class Valuation:
         if not exact_values.on_path(b, lives.rate):
             return self._general_moments(b, index)
         model = self.model
-        if not _surely_converges(model, lives, self.horizon[index]):
+        if lives.converges is None:  # the same for every benefit of these lives
+            lives.converges = _surely_converges(model, lives, self.horizon[index])
+        if not lives.converges:
             _check_converges(model, self.age[index], self.duration[index],
                              _cover_end(self.horizon[index], b, self.discount), b,
                              self.discount)
