@@ -87,12 +87,9 @@ class ExactTables:
         self.key = key
         self.expansion = built
         self.quantities = list(range(len(KINDS[key.kind])))
-        m = key.frequency
-        v = 1.0 / (1.0 + key.rate)
-        steps = np.arange(1, m + 1) if key.kind == "arrears" else np.arange(m)
         #: the payments of one policy year, certain: Σ_s v^(t_s) / m
-        self.certain_year = float(np.sum(v ** (steps / m)) / m)
-        self.year_discount = v * (1.0 + key.escalation)
+        self.certain_year = _certain_year(key)
+        self.year_discount = (1.0 + key.escalation) / (1.0 + key.rate)
         self._coef_by_order = np.ascontiguousarray(built.coef.transpose(1, 0, 2))
         self._blocks: dict = {}  # one life's coefficients per segment, as floats
         self.nbytes = built.nbytes + self._coef_by_order.nbytes
@@ -315,15 +312,17 @@ def _cells_to_build(model) -> np.ndarray:
     return valid
 
 
-def build_tables(model: YearGridModel, key: TableKey) -> ExactTables:
+def _certain_year(key: TableKey) -> float:
+    """Σ_s v^(t_s) / m over the m payment times t_s of one policy year (an annuity's kinds)."""
     m = key.frequency
-    v = 1.0 / (1.0 + key.rate)
     steps = np.arange(1, m + 1) if key.kind == "arrears" else np.arange(m)
-    certain = float(np.sum(v ** (steps / m)) / m)
-    degree = DEGREE
-    built = expansion.build(_exact_function(model, key, certain), _cells_to_build(model),
-                            segments=m, degree=degree, max_level=MAX_LEVEL,
-                            left_continuous=True)
+    return float(np.sum((1.0 / (1.0 + key.rate)) ** (steps / m)) / m)
+
+
+def build_tables(model: YearGridModel, key: TableKey) -> ExactTables:
+    built = expansion.build(_exact_function(model, key, _certain_year(key)),
+                            _cells_to_build(model), segments=key.frequency, degree=DEGREE,
+                            max_level=MAX_LEVEL, left_continuous=True)
     return ExactTables(model, key, built)
 
 
@@ -474,16 +473,7 @@ class ExactLives:
         """The cumulative hazard from the row's first age to x + k."""
         h = self._hazard.get(k)
         if h is None:
-            model, loc = self.model, self.loc
-            n_years = model.lam.shape[1] - 1
-            jk = loc.index + k
-            jc = np.minimum(jk, n_years - 1)
-            with np.errstate(invalid="ignore", over="ignore"):
-                within = model._year_hazard(loc.row, jc, np.zeros(self.n), loc.frac)
-                h = model.lam[loc.row, np.minimum(jk, n_years)] + np.where(
-                    loc.frac > 0.0, within, 0.0)
-            h = np.where((jk < n_years) | ((jk == n_years) & (loc.frac == 0.0)), h, np.inf)
-            h = np.where(np.isnan(h), np.inf, h)
+            h = _hazard_at(self.model, self.loc, np.full((self.n, 1), k, dtype=np.int64))[:, 0]
             if self.scalar:
                 h = float(h[0])
             self._hazard[k] = h
@@ -698,8 +688,9 @@ def _hazard_at(model, loc: Located, k: np.ndarray) -> np.ndarray:
     return np.where(np.isnan(h), np.inf, h)
 
 
-def _grid_at(lives: ExactLives, tables: ExactTables, k: np.ndarray) -> np.ndarray:
-    """The tables' functions at x + k for every life and column of k: (N, D, Q)."""
+def _grid_at(lives: ExactLives, tables: ExactTables, k: np.ndarray):
+    """The tables' functions at x + k for every life and column of k, (N, D, Q), and their
+    error bounds (N, D)."""
     loc = lives.loc
     row = np.broadcast_to(loc.row[:, None], k.shape).ravel()
     index = (loc.index[:, None] + k).ravel()
