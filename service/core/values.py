@@ -425,11 +425,16 @@ def _check_tail(model, age, duration, t_end: np.ndarray, discount: Discount, ope
         age, duration = age[stops_early], duration[stops_early]
         t_end = np.asarray(t_end)[stops_early]
     g = amounts.growth(b)
-    t_end = np.broadcast_to(np.asarray(t_end, float), np.shape(age))
+    t_end = np.broadcast_to(np.asarray(t_end, float), np.shape(age)[:1])
     if t_end.size == 0:
         return
-    # each life at its own end, in one call
-    h = model.span_hazard(age, duration, np.zeros(t_end.shape), t_end)
+    if np.ndim(age) == 1:  # each life at its own end, in one call
+        h = model.span_hazard(age, duration, np.zeros(t_end.shape), t_end)
+    else:  # a status of several lives: its members' ages per life, so by distinct end
+        h = np.empty(t_end.shape)
+        for t in np.unique(t_end):
+            sel = t_end == t
+            h[sel] = model.cumulative_hazard(age[sel], duration[sel], np.array([t]))[:, 0]
     with np.errstate(over="ignore", invalid="ignore"):
         lv = discount.log_v(t_end) + g * np.maximum(t_end - start, 0.0)
         log_w = -h + np.maximum(lv, 2.0 * lv) + np.log1p(t_end)
