@@ -7,6 +7,7 @@ stops it with a message naming the option or variable (exit status 2).
 
 from __future__ import annotations
 
+import logging
 import os
 import signal
 import sys
@@ -49,6 +50,12 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"{PROGRAM}: cannot start: stored basis {exc}", file=sys.stderr)
         return 1
 
+    loop = _event_loop()
+    logging.getLogger("service").info(
+        "serving with uvicorn %s, the %s parser and the %s event loop, %d worker%s",
+        uvicorn.__version__, settings.http, loop, settings.workers,
+        "" if settings.workers == 1 else "s",
+    )
     common = dict(
         host=settings.host,
         port=settings.port,
@@ -57,7 +64,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         access_log=False,  # the service writes its own access log lines
         server_header=False,
         proxy_headers=False,
-        **configure_protocol(settings.max_header_bytes, settings.request_timeout),
+        loop=loop,
+        **configure_protocol(settings.max_header_bytes, settings.request_timeout, settings.http),
     )
     # uvicorn stops gracefully on SIGTERM (in-flight requests finish), then restores the
     # handler it found and raises the signal again: this handler makes that a clean exit 0
@@ -74,6 +82,16 @@ def main(argv: Sequence[str] | None = None) -> int:
             **common,
         )
     return 0
+
+
+def _event_loop() -> str:
+    """uvloop (libuv, in C) where it is installed, as the server extra does; asyncio's own
+    event loop elsewhere (uvloop does not run on Windows)."""
+    try:
+        import uvloop  # noqa: F401
+    except ImportError:
+        return "asyncio"
+    return "uvloop"
 
 
 def _exit_cleanly(signum, frame) -> None:

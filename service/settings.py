@@ -52,6 +52,9 @@ class Settings(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=
     """Largest request line and headers, in bytes (431 beyond)."""
     request_timeout: Annotated[float, Meta(gt=0, le=3600)] = 10.0
     """Seconds a client may take to send one whole request, head and body (408 beyond)."""
+    http: Literal["httptools", "h11"] = "httptools"
+    """The HTTP/1.1 parser: httptools (in C, the fast one) or h11 (pure Python); both keep
+    the header and timeout limits and answer their own errors as problem+json."""
     log_level: LogLevel = "info"
     """Lowest level of log lines written."""
     auth_token: (
@@ -69,6 +72,8 @@ class SettingsError(ValueError):
 
 
 _FIELDS = Settings.__struct_fields__
+#: settings whose values are names, read in any case
+_LOWER_CASE = frozenset({"log_level", "http"})
 
 _HELP = {
     "host": "address to listen on",
@@ -84,6 +89,7 @@ _HELP = {
     "cache_bytes": "most memory in bytes for the compiled inline bases kept",
     "max_header_bytes": "largest request line and headers in bytes",
     "request_timeout": "seconds a client may take to send one whole request",
+    "http": "HTTP/1.1 parser: httptools or h11",
     "log_level": "lowest level of log lines: critical, error, warning, info or debug",
     "auth_token": "bearer token required on every request but /health and /ready; at least 16 "
     "printable characters; prefer the environment variable, which process listings do not show",
@@ -122,7 +128,7 @@ def from_environment(environ: Mapping[str, str] | None = None) -> Settings:
         raw = raw.strip()
         if raw == "" and field in ("bases_dir", "auth_token"):
             continue
-        values[field] = raw.lower() if field == "log_level" else raw
+        values[field] = raw.lower() if field in _LOWER_CASE else raw
         where[field] = _env_name(field)
     return _convert(values, where)
 
@@ -161,7 +167,7 @@ def load(
     for field in _FIELDS:
         raw = getattr(args, field)
         if raw is not None:
-            values[field] = raw.strip().lower() if field == "log_level" else raw
+            values[field] = raw.strip().lower() if field in _LOWER_CASE else raw
             where[field] = _option_name(field)
     for field in ("bases_dir", "auth_token"):
         if values.get(field) == "":

@@ -95,5 +95,5 @@ def create_app_from_environment() -> LifetimeApp:
     """For worker processes started by uvicorn: settings from ``LIFETIME_*`` variables (the
     connection limits of this worker too)."""
     settings = from_environment()
-    configure_protocol(settings.max_header_bytes, settings.request_timeout)
+    configure_protocol(settings.max_header_bytes, settings.request_timeout, settings.http)
     return create_app(settings)

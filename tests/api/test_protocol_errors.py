@@ -10,9 +10,10 @@ import pytest
 from service.launch import LocalService
 
 
-@pytest.fixture(scope="module")
-def service(tmp_path_factory):
-    with LocalService(log_path=tmp_path_factory.mktemp("protocol") / "service.log") as running:
+@pytest.fixture(scope="module", params=["httptools", "h11"])
+def service(request, tmp_path_factory):
+    log_path = tmp_path_factory.mktemp("protocol") / "service.log"
+    with LocalService(log_path=log_path, LIFETIME_HTTP=request.param) as running:
         yield running
 
 

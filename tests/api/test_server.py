@@ -59,6 +59,9 @@ def test_server_answers_over_http():
     lines = [json.loads(line) for line in err.decode().splitlines() if line.startswith("{")]
     access = [line for line in lines if line.get("logger") == "service.access"]
     assert any(line["path"] == "/v1/expectation" and line["status"] == 200 for line in access)
+    # the shipped server stack: httptools' parser on uvloop's event loop
+    started = [line["message"] for line in lines if line.get("logger") == "service"]
+    assert any("the httptools parser and the uvloop event loop" in m for m in started), lines
 
 
 @pytest.mark.slow

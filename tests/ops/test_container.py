@@ -117,10 +117,12 @@ def test_start_command_gets_ready_without_writing(tmp_path):
     finally:
         process.terminate()
         try:
-            process.communicate(timeout=10)
+            _, err = process.communicate(timeout=10)
         except subprocess.TimeoutExpired:
             process.kill()
-            process.communicate()
+            _, err = process.communicate()
         for path in [app, *app.rglob("*")]:
             path.chmod(0o755 if path.is_dir() else 0o644)
     assert _snapshot(app) == before, "the service wrote into its package or working directory"
+    # the image's start command runs on the fast stack the lock file installs
+    assert b"the httptools parser and the uvloop event loop" in err, err[-2000:]

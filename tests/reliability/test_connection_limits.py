@@ -22,12 +22,14 @@ REQUEST_TIMEOUT_S = 1.0
 MAX_HEADER_BYTES = 8192
 
 
-@pytest.fixture(scope="module")
-def limited(tmp_path_factory) -> Iterator[Server]:
+@pytest.fixture(scope="module", params=["httptools", "h11"])
+def limited(request, tmp_path_factory) -> Iterator[Server]:
+    """The server with small limits, on each HTTP parser it can use (httptools ships)."""
     running = start_server(
         tmp_path_factory.mktemp("limits"),
         "--request-timeout", str(REQUEST_TIMEOUT_S),
         "--max-header-bytes", str(MAX_HEADER_BYTES),
+        "--http", request.param,
     )
     try:
         yield running
@@ -81,6 +83,42 @@ def test_headers_larger_than_the_limit_are_431_problem(limited):
     assert headers["content-type"] == "application/problem+json"
     assert json.loads(body)["type"] == "/problems/headers-too-large"
     assert _is_closed(sock)
+
+
+def test_headers_larger_than_the_limit_in_one_piece_are_431(limited):
+    sock = _connect(limited)
+    sock.sendall(b"GET /health HTTP/1.1\r\nHost: x\r\nX-Padding: " + b"a" * MAX_HEADER_BYTES
+                 + b"\r\n\r\n")
+    status, headers, body = _answer(sock)
+    assert status == 431
+    assert json.loads(body)["type"] == "/problems/headers-too-large"
+    assert _is_closed(sock)
+
+
+def test_a_head_just_under_the_limit_sent_in_pieces_is_answered(limited):
+    sock = _connect(limited)
+    head = b"GET /health HTTP/1.1\r\nHost: x\r\nX-Padding: " + b"a" * (MAX_HEADER_BYTES - 200)
+    for start in range(0, len(head), 3000):
+        sock.sendall(head[start:start + 3000])
+        time.sleep(0.05)
+    sock.sendall(b"\r\n\r\n")
+    status, _, _ = _answer(sock)
+    assert status == 200
+
+
+def test_pipelined_requests_after_a_large_body_are_each_answered(limited):
+    """The bytes of a body (larger than the head limit) and of whole earlier requests read
+    together with the start of the next head do not count towards that head."""
+    sock = _connect(limited)
+    body = b'{"basis": "standard-ultimate", "lives": [{"age": 60}]}' + b" " * (3 * MAX_HEADER_BYTES)
+    post = (b"POST /v1/expectation HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\n"
+            b"Content-Length: " + str(len(body)).encode() + b"\r\n\r\n" + body)
+    get = b"GET /health HTTP/1.1\r\nHost: x\r\nX-Padding: " + b"a" * (MAX_HEADER_BYTES // 2)
+    sock.sendall(post + get)
+    time.sleep(0.2)
+    sock.sendall(b"\r\n\r\n")
+    assert _answer(sock)[0] == 200
+    assert _answer(sock)[0] == 200
 
 
 def test_many_huge_unfinished_heads_do_not_hold_memory(limited):

@@ -6,6 +6,7 @@ import json
 import re
 import subprocess
 import sys
+import tomllib
 from pathlib import Path
 
 import pytest
@@ -22,6 +23,18 @@ def test_every_pin_has_hashes_and_the_image_installs_from_the_lock():
     assert all("--hash=sha256:" in block for block in blocks)
     dockerfile = (ROOT / "Dockerfile").read_text()
     assert "--require-hashes -r requirements.lock" in dockerfile
+
+
+def test_the_lock_pins_every_dependency_of_the_server_extra():
+    """pyproject.toml and the lock file agree: the server extra's packages (the fast server
+    stack, httptools and uvloop, among them) are all pinned."""
+    project = tomllib.loads((ROOT / "pyproject.toml").read_text())["project"]
+    wanted = [re.split(r"[<>=!~;\[ ]", d, maxsplit=1)[0] for d in
+              project["dependencies"] + project["optional-dependencies"]["server"]]
+    pinned = {name.lower().replace("_", "-") for name, _ in
+              re.findall(r"^([A-Za-z0-9_.\-]+)==(\S+) \\$", LOCK.read_text(), re.M)}
+    assert {"httptools", "uvloop"} <= set(wanted)
+    assert [name for name in wanted if name.lower().replace("_", "-") not in pinned] == []
 
 
 @pytest.mark.slow
