@@ -32,7 +32,6 @@ from litestar.openapi.datastructures import ResponseSpec
 from service.bases.catalogue import Catalogue, ResolvedBasis
 from service.core import work as cost
 from service.core.errors import DomainError, fmt
-from service.core.transforms import selects_by_duration
 from service.settings import Settings
 from service.version import service_version
 
@@ -41,6 +40,7 @@ from . import schemas as s
 from .body import decode, read_body
 from .conventions import chosen_media_type
 from .lives import dated_lives, gives_any, several_lives
+from .model_facts import ModelFacts, facts
 from .problems import PROBLEM_MEDIA_TYPE, Problem, bad_field, domain_problem
 from .tabular import CSV_MEDIA_TYPE, cell, results_csv
 
@@ -122,6 +122,8 @@ class Calculations:
     def __init__(self, settings: Settings, catalogue: Catalogue):
         self.settings = settings
         self.catalogue = catalogue
+        #: an estimate at most this is computed on the event loop, within the budget
+        self.inline_seconds = min(OFFLOAD_SECONDS, settings.max_request_seconds)
 
     async def read(self, request: Request[Any, Any, Any], request_type: type[T]) -> T:
         body = await read_body(request, self.settings.max_body_bytes)
@@ -152,14 +154,18 @@ class Calculations:
                 "$.lives",
                 f"at most {self.settings.max_lives} lives in one request (got {n})",
             )
-        members = getattr(basis.model, "n_members", 1)
-        found = lives
+        model = basis.model
+        known = facts(model)
+        any_duration = True  # unknown: checked on the arrays
         if req.calculation_date is not None or gives_any(lives):
-            found = dated_lives(lives, members, req.calculation_date, req.age_convention)
-        age, duration = found if isinstance(found, tuple) else _numbers(found, members)
-        _check_durations_apply(basis.model, duration)
-        age, duration = basis.model.place_lives(age, duration, req.selection_age_rule)
-        basis.model.check_lives(age, duration)  # DomainError fields are "lives[i].age" …
+            found = dated_lives(lives, known.members, req.calculation_date, req.age_convention)
+            age, duration = found if isinstance(found, tuple) else _numbers(found, known.members)[:2]
+        else:
+            age, duration, any_duration = _numbers(lives, known.members)
+        if known.unselected and any_duration:
+            _check_durations_apply(known, duration)
+        age, duration = model.place_lives(age, duration, req.selection_age_rule)
+        model.check_lives(age, duration)  # DomainError fields are "lives[i].age" …
         return age, duration
 
     def durations(self, values: list[float], field: str, lives: int) -> np.ndarray:
@@ -234,6 +240,18 @@ class Calculations:
             f"fewer members, fewer benefits or durations, or a term",
         )
 
+    def moments_seconds(self, model: Any, age: np.ndarray, term: int | None, calls: int) -> float:
+        """The estimated seconds of moments over the lives aged ``age`` (``_moments_seconds``),
+        or the model's bound on it when that alone decides to compute on the event loop
+        (model_facts.py)."""
+        bound = facts(model).bound(
+            ("moments", calls), lambda ages: _moments_seconds(model, ages, None, calls),
+            age.shape[0],
+        )
+        if bound <= self.inline_seconds:
+            return bound
+        return _moments_seconds(model, age, term, calls)
+
     async def run(self, work: Callable[[], T], estimate: float, lives: int) -> T:
         """``work`` within the budget: refused above it, in a worker thread above
         ``OFFLOAD_SECONDS``, on the event loop below."""
@@ -243,8 +261,9 @@ class Calculations:
         return work()
 
 
-def _numbers(lives: list[s.Life], members: int) -> tuple[np.ndarray, np.ndarray]:
-    """The ages and durations the lives give as numbers (several_lives checks the rest)."""
+def _numbers(lives: list[s.Life], members: int) -> tuple[np.ndarray, np.ndarray, bool]:
+    """The ages and durations the lives give as numbers (several_lives checks the rest), and
+    whether any duration is not 0 (True when only the arrays tell)."""
     ages = [life.age for life in lives]
     n = len(lives)
     if (
@@ -253,24 +272,22 @@ def _numbers(lives: list[s.Life], members: int) -> tuple[np.ndarray, np.ndarray]
         or [life.ages for life in lives].count(None) != n
         or [life.durations for life in lives].count(None) != n
     ):
-        return several_lives(lives, members)
-    return np.array(ages, dtype=float), np.array([life.duration for life in lives], dtype=float)
+        return (*several_lives(lives, members), True)
+    durations = [life.duration for life in lives]
+    return np.array(ages, dtype=float), np.array(durations, dtype=float), any(durations)
 
 
-def _check_durations_apply(model: Any, duration: np.ndarray) -> None:
+def _check_durations_apply(known: ModelFacts, duration: np.ndarray) -> None:
     """A duration since selection on a basis (or a member) without a select period would be
     silently ignored: a 422 instead, naming the first such duration."""
-    members = getattr(model, "members", None)
-    columns = [model] if members is None else members
-    for j, member in enumerate(columns):
-        if selects_by_duration(member):
-            continue
-        given = duration if members is None else duration[:, j]
+    single = known.columns is None
+    for j in known.unselected:
+        given = duration if single else duration[:, j]
         bad = np.flatnonzero(given != 0.0)
         if bad.size:
             i = int(bad[0])
-            where = f"$.lives[{i}].duration" if members is None else f"$.lives[{i}].durations[{j}]"
-            whose = "this basis" if members is None else f"member {j} of this basis"
+            where = f"$.lives[{i}].duration" if single else f"$.lives[{i}].durations[{j}]"
+            whose = "this basis" if single else f"member {j} of this basis"
             raise bad_field(
                 where,
                 f"{whose} has no select period, so a duration since selection does not apply "
@@ -280,7 +297,7 @@ def _check_durations_apply(model: Any, duration: np.ndarray) -> None:
 
 def _youngest(age: np.ndarray) -> float:
     """The youngest age of the lives (the first member's, for a status)."""
-    return float(np.min(age)) if age.size else 0.0
+    return float(age.min()) if age.size else 0.0
 
 
 def _moments_seconds(model: Any, age: np.ndarray, term: int | None, calls: int) -> float:
@@ -375,7 +392,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
         def work():
             return model.expectation_summary(age, duration, term)
 
-        estimate = _moments_seconds(model, age, term, 2)
+        estimate = calc.moments_seconds(model, age, term, 2)
         complete, curtate, complete_var, curtate_var = await calc.run(
             work, estimate, len(req.lives)
         )
@@ -423,7 +440,7 @@ def calculation_handlers(settings: Settings, catalogue: Catalogue) -> list[Any]:
                 model.curtate_moments(age, duration, orders, term),
             )
 
-        estimate = _moments_seconds(model, age, term, 2)
+        estimate = calc.moments_seconds(model, age, term, 2)
         complete, curtate = await calc.run(work, estimate, len(req.lives))
         results = [
             s.MomentsResult(age=a, duration=d, ages=aa, durations=dd, complete=c1, curtate=c2)

@@ -87,6 +87,9 @@ _DATE_NAMES = tuple(name for pair in _DATE_FIELDS for name in pair[:2])
 
 def gives_any(lives: Sequence[Any], names: Sequence[str] = _DATE_NAMES) -> bool:
     """Whether any of the lives gives any of these fields (by default, any date)."""
+    if len(lives) == 1:  # the common single life: its fields read directly
+        life = lives[0]
+        return any(getattr(life, name) is not None for name in names)
     return any(list(map(attrgetter(name), lives)).count(None) != len(lives) for name in names)
 
 

@@ -25,7 +25,7 @@
 from __future__ import annotations
 
 import hmac
-from collections.abc import Awaitable, Callable, MutableMapping
+from collections.abc import Awaitable, Callable, Iterable, MutableMapping
 from typing import Any
 
 import msgspec
@@ -69,26 +69,34 @@ _SET_BY_US = frozenset(
 ) | {b"content-security-policy"}
 
 
+#: what every answer gains at its end: the common headers and the JSON answer's policy, or
+#: the docs page's
+_JSON_TAIL = (*_COMMON_HEADERS, (b"content-security-policy", JSON_CSP))
+_DOCS_TAIL = (*_COMMON_HEADERS, (b"content-security-policy", DOCS_CSP))
+_NO_STORE = (b"cache-control", b"no-store")
+
+
 def security_headers(
-    headers: list[tuple[bytes, bytes]], status: int, path: str
+    headers: Iterable[tuple[bytes, bytes]], status: int, path: str
 ) -> list[tuple[bytes, bytes]]:
     """``headers`` of an answer with the security headers set (replacing any of the same name).
 
-    Errors get ``Cache-Control: no-store`` in place of any caching header.
+    Errors get ``Cache-Control: no-store`` in place of any caching header. One pass over the
+    answer's headers; what is added is built once, at import.
     """
-    is_html = any(
-        k.lower() == b"content-type" and v.lower().startswith(b"text/html") for k, v in headers
-    )
-    out = [
-        (k, v)
-        for k, v in headers
-        if k.lower() not in _SET_BY_US and not (status >= 400 and k.lower() == b"cache-control")
-    ]
-    out.extend(_COMMON_HEADERS)
-    docs_page = is_html and path.startswith(DOCS_PAGE_PREFIX)
-    out.append((b"content-security-policy", DOCS_CSP if docs_page else JSON_CSP))
-    if status >= 400:
-        out.append((b"cache-control", b"no-store"))
+    out = []
+    is_html = False
+    error = status >= 400
+    for name, value in headers:
+        lower = name.lower()
+        if lower == b"content-type":
+            is_html = value[:9].lower() == b"text/html"
+        elif lower in _SET_BY_US or (error and lower == b"cache-control"):
+            continue
+        out.append((name, value))
+    out.extend(_DOCS_TAIL if is_html and path.startswith(DOCS_PAGE_PREFIX) else _JSON_TAIL)
+    if error:
+        out.append(_NO_STORE)
     return out
 
 

@@ -374,6 +374,8 @@ class Catalogue:
         self.cache_bytes = cache_bytes
         self._by_id: dict[str, StoredBasis] = {}
         self._by_fingerprint: dict[str, StoredBasis] = {}
+        #: what ``lookup`` answers for each stored id, built once with the catalogue
+        self._resolved: dict[str, ResolvedBasis] = {}
         self._earlier: dict[str, list[StoredBasis]] = {}
         self._ready = threading.Event()
         self._load_lock = threading.Lock()
@@ -394,6 +396,7 @@ class Catalogue:
     def _install(self, bases: Iterable[StoredBasis]) -> None:
         by_id = {b.id: b for b in bases}
         self._by_id = by_id
+        self._resolved = {b.id: ResolvedBasis(b.id, b.fingerprint, b.model) for b in by_id.values()}
         self._by_fingerprint = {}
         for b in by_id.values():
             self._by_fingerprint.setdefault(b.fingerprint, b)
@@ -432,7 +435,10 @@ class Catalogue:
         Raises ``UnknownBasisError`` for an unknown stored id.
         """
         if isinstance(basis, str):
-            stored = self.get(basis)
+            found = self._resolved.get(basis)
+            if found is not None:
+                return found
+            stored = self.get(basis)  # not ready yet (503), or no such stored basis (404)
             return ResolvedBasis(stored.id, stored.fingerprint, stored.model)
         self._check_ready()
         fp = fingerprint(basis, self._definition_of)
