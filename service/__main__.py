@@ -9,8 +9,10 @@ from __future__ import annotations
 
 import logging
 import os
+import shutil
 import signal
 import sys
+import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 
@@ -38,7 +40,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             file=sys.stderr,
         )
         return 2
-    from service.api.observability import configure_logging
+    from service.api.observability import MULTIPROCESS_DIR_VARIABLE, configure_logging
     from service.bases.catalogue import BasisFileError, Catalogue
 
     configure_logging(settings.log_level)
@@ -72,16 +74,34 @@ def main(argv: Sequence[str] | None = None) -> int:
     signal.signal(signal.SIGTERM, _exit_cleanly)
     if settings.workers == 1:
         uvicorn.run(create_app(settings, catalogue), **common)
-    else:
-        # each worker process builds its own application from the same settings
-        os.environ.update(to_environment(settings))
+        return 0
+    # each worker process builds its own application from the same settings, and writes its
+    # metrics into files of one folder, which /metrics reads whichever worker answers it
+    try:
+        metrics_dir = _metrics_folder()
+    except OSError as exc:
+        print(f"{PROGRAM}: cannot start {settings.workers} workers: no folder for their "
+              f"metrics ({exc}); set TMPDIR or {MULTIPROCESS_DIR_VARIABLE} to a writable "
+              "folder", file=sys.stderr)
+        return 1
+    os.environ.update(to_environment(settings))
+    os.environ[MULTIPROCESS_DIR_VARIABLE] = str(metrics_dir)
+    try:
         uvicorn.run(
             "service.api.app:create_app_from_environment",
             factory=True,
             workers=settings.workers,
             **common,
         )
+    finally:
+        shutil.rmtree(metrics_dir, ignore_errors=True)
     return 0
+
+
+def _metrics_folder() -> Path:
+    """A new, empty folder for the workers' metric files (the Prometheus client's
+    multiprocess mode), removed when the service stops."""
+    return Path(tempfile.mkdtemp(prefix="lifetime-service-metrics-"))
 
 
 def _event_loop() -> str:

@@ -35,10 +35,29 @@ Scope = MutableMapping[str, Any]
 ASGIApp = Callable[[Scope, Callable[[], Awaitable[Any]], Callable[[Any], Awaitable[None]]], Awaitable[None]]
 
 
+#: the environment variable that puts the Prometheus client in its multiprocess mode: each
+#: worker process writes its figures into files of this folder, and /metrics, whichever
+#: worker answers it, reads them all (``python -m service --workers N`` sets it)
+MULTIPROCESS_DIR_VARIABLE = "PROMETHEUS_MULTIPROC_DIR"
+
+
+def is_multiprocess() -> bool:
+    return bool(os.environ.get(MULTIPROCESS_DIR_VARIABLE))
+
+
 class Metrics:
-    """The service's Prometheus metrics, in a registry of its own (one per application)."""
+    """The service's Prometheus metrics, in a registry of its own (one per application).
+
+    One process: the basis cache's figures are read from the catalogue when /metrics is
+    scraped. Several worker processes (the multiprocess mode, ``is_multiprocess``): every
+    figure lives in the workers' files, so /metrics reports the whole service; request counts,
+    latencies and cache hits and misses are summed over the workers, requests in progress and
+    the cache's size summed over the live workers, and the stored bases are the most any
+    worker has loaded. Each worker writes its cache figures when they change (``after_request``).
+    """
 
     def __init__(self, catalogue: Catalogue):
+        self.multiprocess = is_multiprocess()
         self.registry = CollectorRegistry(auto_describe=True)
         self.requests = Counter(
             "lifetime_http_requests",
@@ -57,8 +76,73 @@ class Metrics:
             "lifetime_http_requests_in_progress",
             "HTTP requests received and not yet answered.",
             registry=self.registry,
+            multiprocess_mode="livesum",
         )
-        self.registry.register(_CatalogueCollector(catalogue))
+        #: what /metrics writes out
+        self.exposed = self.registry
+        #: called after every request (None: nothing to do)
+        self.after_request: Callable[[], None] | None = None
+        if self.multiprocess:
+            from prometheus_client import multiprocess
+
+            self.exposed = CollectorRegistry()
+            multiprocess.MultiProcessCollector(self.exposed)
+            self.after_request = _CacheFigures(catalogue, self.registry).write_if_changed
+        else:
+            self.registry.register(_CatalogueCollector(catalogue))
+
+    def worker_stopped(self) -> None:
+        """A worker's live figures (in progress, cache size) leave the sums when it stops."""
+        if self.multiprocess:
+            from prometheus_client import multiprocess
+
+            multiprocess.mark_process_dead(os.getpid())
+
+
+class _CacheFigures:
+    """The basis cache's figures as metrics of the multiprocess mode, written by each worker
+    when they change: one comparison per request otherwise."""
+
+    def __init__(self, catalogue: Catalogue, registry: CollectorRegistry):
+        self.catalogue = catalogue
+        self.hits = Counter("lifetime_basis_cache_hits", _HELP["lifetime_basis_cache_hits"], registry=registry)
+        self.misses = Counter("lifetime_basis_cache_misses", _HELP["lifetime_basis_cache_misses"], registry=registry)
+        self.size = Gauge("lifetime_basis_cache_size", _HELP["lifetime_basis_cache_size"], registry=registry,
+                          multiprocess_mode="livesum")
+        self.bytes = Gauge("lifetime_basis_cache_bytes", _HELP["lifetime_basis_cache_bytes"], registry=registry,
+                           multiprocess_mode="livesum")
+        self.capacity = Gauge("lifetime_basis_cache_capacity", _HELP["lifetime_basis_cache_capacity"],
+                              registry=registry, multiprocess_mode="livesum")
+        self.stored = Gauge("lifetime_stored_bases", _HELP["lifetime_stored_bases"], registry=registry,
+                            multiprocess_mode="max")
+        self.written: tuple[Any, ...] = ()
+        self.counted = (0, 0)
+
+    def write_if_changed(self) -> None:
+        catalogue = self.catalogue
+        cache = catalogue.cache
+        now = (cache.hits, cache.misses, len(cache), cache.bytes, catalogue.ready)
+        if now == self.written:
+            return
+        hits, misses = now[0], now[1]
+        self.hits.inc(hits - self.counted[0])
+        self.misses.inc(misses - self.counted[1])
+        self.counted = (hits, misses)
+        self.size.set(now[2])
+        self.bytes.set(now[3])
+        self.capacity.set(cache.capacity)
+        self.stored.set(len(catalogue.stored()) if catalogue.ready else 0)
+        self.written = now
+
+
+_HELP = {
+    "lifetime_basis_cache_hits": "Inline bases answered without compiling (from the cache or a stored basis).",
+    "lifetime_basis_cache_misses": "Inline bases that had to be compiled.",
+    "lifetime_basis_cache_size": "Compiled inline bases kept.",
+    "lifetime_basis_cache_bytes": "Memory taken by the compiled inline bases kept.",
+    "lifetime_basis_cache_capacity": "Most compiled inline bases kept.",
+    "lifetime_stored_bases": "Stored bases loaded and compiled (always kept).",
+}
 
 
 class _CatalogueCollector(Collector):
@@ -67,35 +151,18 @@ class _CatalogueCollector(Collector):
 
     def collect(self):
         cache = self.catalogue.cache
-        hits = CounterMetricFamily(
-            "lifetime_basis_cache_hits",
-            "Inline bases answered without compiling (from the cache or a stored basis).",
-        )
-        hits.add_metric([], cache.hits)
-        yield hits
-        misses = CounterMetricFamily(
-            "lifetime_basis_cache_misses", "Inline bases that had to be compiled."
-        )
-        misses.add_metric([], cache.misses)
-        yield misses
-        size = GaugeMetricFamily("lifetime_basis_cache_size", "Compiled inline bases kept.")
-        size.add_metric([], len(cache))
-        yield size
-        size_bytes = GaugeMetricFamily(
-            "lifetime_basis_cache_bytes", "Memory taken by the compiled inline bases kept."
-        )
-        size_bytes.add_metric([], cache.bytes)
-        yield size_bytes
-        capacity = GaugeMetricFamily(
-            "lifetime_basis_cache_capacity", "Most compiled inline bases kept."
-        )
-        capacity.add_metric([], cache.capacity)
-        yield capacity
-        stored = GaugeMetricFamily(
-            "lifetime_stored_bases", "Stored bases loaded and compiled (always kept)."
-        )
-        stored.add_metric([], len(self.catalogue.stored()) if self.catalogue.ready else 0)
-        yield stored
+        stored = len(self.catalogue.stored()) if self.catalogue.ready else 0
+        for name, family, value in (
+            ("lifetime_basis_cache_hits", CounterMetricFamily, cache.hits),
+            ("lifetime_basis_cache_misses", CounterMetricFamily, cache.misses),
+            ("lifetime_basis_cache_size", GaugeMetricFamily, len(cache)),
+            ("lifetime_basis_cache_bytes", GaugeMetricFamily, cache.bytes),
+            ("lifetime_basis_cache_capacity", GaugeMetricFamily, cache.capacity),
+            ("lifetime_stored_bases", GaugeMetricFamily, stored),
+        ):
+            metric = family(name, _HELP[name])
+            metric.add_metric([], value)
+            yield metric
 
 
 def request_id_from(headers: list[tuple[bytes, bytes]]) -> str:
@@ -115,9 +182,50 @@ _ID_PREFIX = os.urandom(8).hex()
 _ID_COUNTER = itertools.count(1)
 
 
+#: the fields of every access-log record that do not change between requests (where it is
+#: written from, the process and thread), taken from one record made the standard way
+_ACCESS_TEMPLATE = logging.LogRecord(
+    access_log.name, logging.INFO, __file__, 0, "", (), None, "observe"
+).__dict__.copy()
+
+
+def access_record(line: str) -> logging.LogRecord:
+    """The access-log record of one request, its message ``line``.
+
+    The same record the logging module makes (every attribute a formatter or handler may
+    read), without finding the constant fields again for each request: the standard
+    ``LogRecord`` looks up the caller, the thread and the process every time, which made this
+    line cost more than the rest of the request's bookkeeping together.
+    """
+    record = _new_record(logging.LogRecord)
+    fields = record.__dict__
+    fields.update(_ACCESS_TEMPLATE)
+    created = time.time()
+    fields["msg"] = line
+    fields["created"] = created
+    fields["msecs"] = int((created - int(created)) * 1000) + 0.0
+    fields["relativeCreated"] = _ACCESS_TEMPLATE["relativeCreated"] + 1000.0 * (
+        created - _ACCESS_TEMPLATE["created"]
+    )
+    return record
+
+
+_new_record = object.__new__
+
+
 def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
-    """Wrap ``app`` with request ids, security headers, metrics and one access-log line."""
+    """Wrap ``app`` with request ids, security headers, metrics and one access-log line.
+
+    Everything that does not change between requests (the encoder, the metrics' labelled
+    children for each route, method and status, the bound methods) is found once here, so a
+    request pays only for its own values.
+    """
     encode = msgspec.json.Encoder().encode
+    clock = time.perf_counter
+    logs = access_log.isEnabledFor
+    handle = access_log.handle
+    in_progress = metrics.in_progress
+    after_request = metrics.after_request
     # the labelled children of the two metrics, found once per (route, method, status)
     children: dict[tuple[str, str, int], tuple[Any, Any]] = {}
 
@@ -126,7 +234,8 @@ def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
         found = children.get(key)
         if found is None:
             labels = (route, method, str(status))
-            found = (metrics.requests.labels(*labels), metrics.latency.labels(*labels))
+            found = (metrics.requests.labels(*labels).inc,
+                     metrics.latency.labels(*labels).observe)
             if len(children) < 10_000:  # routes are templates, so this stays small
                 children[key] = found
         return found
@@ -135,19 +244,19 @@ def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
         if scope["type"] != "http":
             await app(scope, receive, send)
             return
-        started = time.perf_counter()
-        request_id = request_id_from(scope.get("headers", []))
-        state = scope.setdefault("state", {})
+        started = clock()
+        request_id = request_id_from(scope.get("headers", ()))
+        state = scope.get("state")
+        if state is None:
+            state = scope["state"] = {}
         state["request_id"] = request_id
-        status_holder = [500]
+        status = 500
 
         async def send_with_headers(message: Any) -> None:
+            nonlocal status
             if message["type"] == "http.response.start":
                 status = message["status"]
-                status_holder[0] = status
-                headers = security_headers(
-                    list(message.get("headers", [])), status, scope.get("path", "")
-                )
+                headers = security_headers(message.get("headers", ()), status, scope["path"])
                 headers.append((REQUEST_ID_HEADER, request_id.encode("ascii")))
                 calculation = state.get("calculation_fingerprint")
                 if calculation:
@@ -155,19 +264,20 @@ def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
                 message = {**message, "headers": headers}
             await send(message)
 
-        metrics.in_progress.inc()
+        in_progress.inc()
         try:
             await app(scope, receive, send_with_headers)
         finally:
-            metrics.in_progress.dec()
-            elapsed = time.perf_counter() - started
-            status = status_holder[0]
+            in_progress.dec()
+            elapsed = clock() - started
             route = scope.get("path_template") or "unmatched"
             method = scope.get("method", "")
             count, latency = metric_children(route, method, status)
-            count.inc()
-            latency.observe(elapsed)
-            if access_log.isEnabledFor(logging.INFO):
+            count()
+            latency(elapsed)
+            if after_request is not None:
+                after_request()
+            if logs(logging.INFO):
                 record = {
                     "event": "request",
                     "method": method,
@@ -183,24 +293,51 @@ def observe(app: ASGIApp, metrics: Metrics) -> ASGIApp:
                 calculation = state.get("calculation_fingerprint")
                 if calculation:
                     record["calculation_fingerprint"] = calculation
-                access_log.info(encode(record).decode())
+                handle(access_record(encode(record).decode()))
 
     return observed
 
 
 class JsonLineFormatter(logging.Formatter):
-    """One JSON object per line: time, level, logger and the message (merged when it is JSON)."""
+    """One JSON object per line: time, level, logger and the message (merged when it is JSON).
+
+    An access-log message is a JSON object the service wrote itself (``observe``): its fields
+    follow the time, level and logger as they are, without decoding it again. The time's
+    seconds are formatted once per second.
+    """
 
     _encode = staticmethod(msgspec.json.Encoder().encode)
 
+    def __init__(self) -> None:
+        super().__init__()
+        self._second = -1
+        self._second_text = ""
+
+    def _time(self, created: float) -> str:
+        second = int(created)
+        if second != self._second:
+            self._second_text = time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(second))
+            self._second = second
+        return f"{self._second_text}.{int((created - second) * 1000):03d}Z"
+
     def format(self, record: logging.LogRecord) -> str:
+        message = record.getMessage()
+        if (
+            record.name == access_log.name
+            and not record.exc_info
+            and message.startswith("{")
+            and message.endswith("}")
+            and len(message) > 2
+        ):
+            return (
+                f'{{"time":"{self._time(record.created)}",'
+                f'"level":"{record.levelname.lower()}","logger":"{record.name}",{message[1:]}'
+            )
         line: dict[str, Any] = {
-            "time": time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(record.created))
-            + f".{int(record.msecs):03d}Z",
+            "time": self._time(record.created),
             "level": record.levelname.lower(),
             "logger": record.name,
         }
-        message = record.getMessage()
         if record.name == access_log.name and message.startswith("{"):
             try:
                 line.update(msgspec.json.decode(message))
@@ -214,7 +351,8 @@ class JsonLineFormatter(logging.Formatter):
 
 
 def configure_logging(level: str) -> None:
-    """JSON lines on standard error for the service's and the server's loggers."""
+    """JSON lines on standard error for the service's and the server's loggers.
+    """
     handler = logging.StreamHandler(sys.stderr)
     handler.setFormatter(JsonLineFormatter())
     root = logging.getLogger()

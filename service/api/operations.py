@@ -51,8 +51,9 @@ def operations_handlers(catalogue: Catalogue, metrics: Metrics) -> list[Any]:
 
     @get("/metrics", operation_id="metrics", summary="Prometheus metrics", media_type=CONTENT_TYPE_LATEST, **common)
     def prometheus_metrics() -> Response[bytes]:
-        """Request counts and latencies by route and status; basis-cache hits, misses, size."""
-        return Response(generate_latest(metrics.registry), media_type=CONTENT_TYPE_LATEST)
+        """Request counts and latencies by route and status; basis-cache hits, misses, size.
+        With several workers, the figures of the whole service, whichever worker answers."""
+        return Response(generate_latest(metrics.exposed), media_type=CONTENT_TYPE_LATEST)
 
     @get(
         "/problems/{kind:str}",
