@@ -67,7 +67,7 @@ def create_app(settings: Settings | None = None, catalogue: Catalogue | None = N
         ],
         before_request=negotiate,
         exception_handlers=EXCEPTION_HANDLERS,  # type: ignore[arg-type]
-        on_startup=[catalogue.load, _freeze_startup_objects],
+        on_startup=[catalogue.load, metrics.worker_started, _freeze_startup_objects],
         on_shutdown=[metrics.worker_stopped],
         openapi_config=openapi_config(),
         request_max_body_size=None,  # the calculation handlers enforce max_body_bytes

@@ -91,6 +91,12 @@ class Metrics:
         else:
             self.registry.register(_CatalogueCollector(catalogue))
 
+    def worker_started(self) -> None:
+        """Once the stored bases are loaded: a worker's cache figures from the start, so the
+        first scrape counts its stored bases too."""
+        if self.after_request is not None:
+            self.after_request()
+
     def worker_stopped(self) -> None:
         """A worker's live figures (in progress, cache size) leave the sums when it stops."""
         if self.multiprocess:

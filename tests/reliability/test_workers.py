@@ -52,6 +52,9 @@ def _requests_by_worker(folder: Path) -> dict[str, float]:
 def test_metrics_count_the_requests_of_every_worker(two_workers):
     server, folders = two_workers
     (metrics_dir,) = folders.iterdir()
+    # before any calculation, the first scrape already counts both workers' stored bases
+    first = httpx.get(f"{server.base}/metrics", timeout=10).text
+    assert re.search(r"^lifetime_stored_bases 5\.0$", first, re.M), first[-2000:]
     body = {"basis": "standard-ultimate", "lives": [{"age": 47.63}]}
     sent = 0
     # a new connection for each request, until both workers have answered some (bounded)
