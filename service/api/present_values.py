@@ -121,6 +121,11 @@ def _finite_list(values) -> list | None:
     return None if values is None else [_finite(v) for v in values]
 
 
+#: evaluations per life of a benefit the exact-age tables value: lookups at a few ages and the
+#: survival between them (measured: about as much as ten scattered survival evaluations)
+TABLE_EVALUATIONS = 10
+
+
 def check_work(age: np.ndarray, basis, discount: pv.Discount, items: list[QuoteItem],
                repeats: int = 1) -> float:
     """The estimated seconds of valuing ``items`` for these lives ``repeats`` times
@@ -142,16 +147,23 @@ def check_work(age: np.ndarray, basis, discount: pv.Discount, items: list[QuoteI
             f"lives times payment times would be about {work:,}; at most {MAX_WORK:,} are "
             "computed in one request, so split it",
         )
-    # discrete payments are evaluations at scattered times; continuous benefits are
-    # integrals on panels, like the moments; a net premium adds the premium annuity
-    discrete = sum(n * v for n, v, it in counts if not pv.is_continuous(it.benefit))
+    # discrete payments are evaluations at scattered times, or a few lookups where the
+    # exact-age tables value them; continuous benefits are integrals on panels, like the
+    # moments; a net premium adds the premium annuity
+    tables = pv.exact_tables_apply(model, discount)
+    on_tables = [tables and pv.exact_values.on_path(it.benefit, discount.rate) for it in items]
+    discrete = sum(
+        (TABLE_EVALUATIONS if fast else n) * v
+        for (n, v, it), fast in zip(counts, on_tables) if not pv.is_continuous(it.benefit))
     continuous = sum(
         n * v * cost.NODES * cost.kink_families(model) / 2.0
         for n, v, it in counts if pv.is_continuous(it.benefit)
-    ) + cost.integral_evaluations(model, horizon) * sum(it.premiums is not False for it in items)
+    ) + cost.integral_evaluations(model, horizon) * sum(
+        it.premiums is not False and not fast for it, fast in zip(items, on_tables))
+    # a benefit on the tables is about one vectorised evaluation's fixed cost, others four
     once = cost.seconds(
-        model, lives, discrete, calls=4 * len(items), pointwise=True,
-        output_values=3 * lives * len(items),
+        model, lives, discrete, calls=sum(1 if fast else 4 for fast in on_tables),
+        pointwise=True, output_values=3 * lives * len(items),
     ) + cost.seconds(model, lives, continuous, needs_horizon=False, calls=0)
     # the exact-age tables a first valuation at this rate builds (once, then kept)
     benefits = [it.benefit for it in items] + [

@@ -992,10 +992,16 @@ def _subset(loc: Located, index) -> Located:
     return Located(loc.row[index], loc.index[index], loc.frac[index])
 
 
+def exact_tables_apply(model, discount: Discount) -> bool:
+    """Whether the exact-age tables may value benefits on this basis at this interest."""
+    return (discount.rate is not None and discount.rate >= FAST_RATES_FROM
+            and fast_path_model(model))
+
+
 def exact_build_seconds(model, discount: Discount, benefits) -> float:
     """The estimated seconds of the exact-age table builds a valuation would start now (for
     a request's work estimate)."""
-    if discount.rate is None or discount.rate < FAST_RATES_FROM or not fast_path_model(model):
+    if not exact_tables_apply(model, discount):
         return 0.0
     return exact_values.build_seconds(model, float(discount.rate), benefits)
 
