@@ -154,10 +154,12 @@ def check_work(age: np.ndarray, basis, discount: pv.Discount, items: list[QuoteI
     on_tables = [tables and pv.exact_values.on_path(it.benefit, discount.rate) for it in items]
     discrete = sum(
         (TABLE_EVALUATIONS if fast else n) * v
-        for (n, v, it), fast in zip(counts, on_tables) if not pv.is_continuous(it.benefit))
+        for (n, v, it), fast in zip(counts, on_tables)
+        if fast or not pv.is_continuous(it.benefit))
     continuous = sum(
         n * v * cost.NODES * cost.kink_families(model) / 2.0
-        for n, v, it in counts if pv.is_continuous(it.benefit)
+        for (n, v, it), fast in zip(counts, on_tables)
+        if pv.is_continuous(it.benefit) and not fast
     ) + cost.integral_evaluations(model, horizon) * sum(
         it.premiums is not False and not fast for it, fast in zip(items, on_tables))
     # a benefit on the tables is about one vectorised evaluation's fixed cost, others four

@@ -37,17 +37,21 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import expansion
-from .lifetime import Located, YearGridModel
+from .lifetime import GL_NODES, GL_WEIGHTS, Located, YearGridModel
 from .tables import SelectTable
 
 #: the quantities each kind of table keeps (per unit, whole life from the anchor age)
 KINDS = {
     "advance": ("annuity", "annuity_second"),
     "arrears": ("annuity", "annuity_second"),
+    "continuous": ("annuity", "annuity_second"),
+    "moment-of-death": ("insurance", "insurance_second"),
     "insurance": ("insurance", "insurance_second"),
     "increasing": ("insurance", "insurance_second", "increasing", "increasing_second",
                    "square_second"),
 }
+#: the kinds valued by quadrature within each policy year
+CONTINUOUS = ("continuous", "moment-of-death")
 #: the degree of the polynomials on each segment, and at most 2**MAX_LEVEL segments per 1/m
 #: year: degree 8 reproduces a year of the usual bases to about 3e-15 (measured); the steep
 #: last years of a table take more segments
@@ -224,6 +228,50 @@ def _year_pieces(model, rows, years, f, key: TableKey):
     return alive[..., -1], own
 
 
+def _continuous_pieces(model, rows, years, f, key: TableKey):
+    """``_year_pieces`` for a continuous annuity (rate 1 a year) or an insurance at the moment
+    of death: the policy year from y + f in two Gauss–Legendre panels, up to the next whole
+    age and after it (the fractional rule has its kink there), each smooth."""
+    n_years = model.lam.shape[1] - 1
+    v = 1.0 / (1.0 + key.rate)
+    delta = math.log1p(key.rate)
+    rr = rows[:, None, None, None]
+    yy = years[None, :, None, None]
+    ff = f[None, None, :, None]
+    rr, yy, ff = np.broadcast_arrays(rr, yy, ff)
+    x = GL_NODES[None, None, None, :]
+    cross = 1.0 - ff  # time to the next whole age
+    has_next = (yy + 1) < n_years
+    y_next = np.minimum(yy + 1, n_years - 1)
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        s_a = cross * x
+        h_a = model._year_hazard(rr, yy, ff, ff + s_a)
+        mu_a = model._year_force(rr, yy, ff + s_a)
+        h_cross = model._year_hazard(rr[..., :1], yy[..., :1], ff[..., :1],
+                                     np.ones(ff[..., :1].shape))
+        s_b = cross + ff * x
+        h_b = h_cross + np.where(has_next, model._year_hazard(rr, y_next, np.zeros(ff.shape),
+                                                              ff * x), np.inf)
+        mu_b = np.where(has_next, model._year_force(rr, y_next, ff * x), 0.0)
+        h_year = h_cross[..., 0] + np.where(has_next[..., 0], model._year_hazard(
+            rr[..., 0], y_next[..., 0], np.zeros(ff[..., 0].shape), ff[..., 0]), np.inf)
+        p = np.nan_to_num(np.exp(-h_year), nan=0.0)
+        times = np.concatenate([s_a, s_b], axis=-1)
+        alive = np.nan_to_num(np.exp(-np.concatenate([h_a, h_b], axis=-1)), nan=0.0)
+        weight = np.concatenate([cross * GL_WEIGHTS, ff * GL_WEIGHTS], axis=-1)
+        vt = v**times
+        if key.kind == "continuous":
+            paid = -np.expm1(-delta * times) / delta if delta > 0.0 else times  # ∫₀ˢ vʳ dr
+            first = (weight * vt * alive).sum(axis=-1)
+            second = 2.0 * (weight * vt * paid * alive).sum(axis=-1)
+        else:
+            mu = np.concatenate([mu_a, mu_b], axis=-1)
+            dens = np.where(alive > 0.0, alive * np.nan_to_num(mu, nan=0.0, posinf=0.0), 0.0)
+            first = (weight * vt * dens).sum(axis=-1)
+            second = (weight * vt * vt * dens).sum(axis=-1)
+    return p, np.stack([first, second], axis=-1)
+
+
 def _recurse(p, own, key: TableKey, seed, certain: float):
     """The backward recursion over the years (axis 1) from ``seed`` at the last year's end."""
     v = 1.0 / (1.0 + key.rate)
@@ -234,7 +282,7 @@ def _recurse(p, own, key: TableKey, seed, certain: float):
         py = p[:, y]
         z1, z2 = own[:, y, :, 0], own[:, y, :, 1]
         cur = np.empty_like(nxt)
-        if key.kind in ("advance", "arrears"):
+        if key.kind in ("advance", "arrears", "continuous"):
             cur[..., 0] = z1 + vy * py * nxt[..., 0]
             cur[..., 1] = z2 + py * (2.0 * vy * certain * nxt[..., 0] + vy * vy * nxt[..., 1])
         else:
@@ -257,9 +305,10 @@ def _rows_values(model, rows, first: int, last: int, f, key: TableKey, seed, cer
     years = np.arange(first, last)
     out = np.empty((rows.size, years.size, f.size, q))
     chunk = max(1, BUILD_ELEMENTS // max(1, years.size * f.size * (key.frequency + 1)))
+    pieces = _continuous_pieces if key.kind in CONTINUOUS else _year_pieces
     for lo in range(0, rows.size, chunk):
         sl = slice(lo, lo + chunk)
-        p, own = _year_pieces(model, rows[sl], years, f, key)
+        p, own = pieces(model, rows[sl], years, f, key)
         out[sl] = _recurse(p, own, key, seed[sl], certain)
     return out
 
@@ -313,7 +362,11 @@ def _cells_to_build(model) -> np.ndarray:
 
 
 def _certain_year(key: TableKey) -> float:
-    """Σ_s v^(t_s) / m over the m payment times t_s of one policy year (an annuity's kinds)."""
+    """Σ_s v^(t_s) / m over the m payment times t_s of one policy year (an annuity's kinds),
+    or ∫₀¹ vˢ ds paid continuously."""
+    if key.kind == "continuous":
+        delta = math.log1p(key.rate)
+        return -math.expm1(-delta) / delta if delta > 0.0 else 1.0
     m = key.frequency
     steps = np.arange(1, m + 1) if key.kind == "arrears" else np.arange(m)
     return float(np.sum((1.0 / (1.0 + key.rate)) ** (steps / m)) / m)
@@ -422,11 +475,13 @@ def on_path(b, rate: float) -> bool:
     if rate < 0.0 or (escalation != 0.0 and escalated_rate(rate, escalation) < 0.0):
         return False
     if isinstance(b, LifeAnnuity):
-        return (b.timing in ("advance", "arrears") and not b.increasing
+        return (b.timing in ("advance", "arrears", "continuous") and not b.increasing
                 and whole(b.term) and whole(b.deferral) and whole(b.guarantee))
     if isinstance(b, (LifeInsurance, Endowment)):
-        return (b.timing in ("end-of-year", "end-of-period") and whole(b.term)
-                and whole(getattr(b, "deferral", 0.0)))
+        level = not (getattr(b, "increasing", False) or getattr(b, "decreasing", False))
+        return ((b.timing in ("end-of-year", "end-of-period")
+                 or (b.timing == "moment-of-death" and level))
+                and whole(b.term) and whole(getattr(b, "deferral", 0.0)))
     if isinstance(b, PureEndowment):
         return whole(b.term)
     return False
@@ -547,8 +602,8 @@ def exact_moments(lives: ExactLives, b, tables_for) -> tuple[np.ndarray, np.ndar
 
 
 def _frequency(b) -> int:
-    """Payments (or periods of death) a year of a benefit on the path."""
-    if getattr(b, "timing", "") == "end-of-year":
+    """Payments (or periods of death) a year of a benefit on the path (1: continuous)."""
+    if getattr(b, "timing", "") in ("end-of-year", "continuous", "moment-of-death"):
         return 1
     return int(getattr(b, "frequency", 1))
 
@@ -559,13 +614,14 @@ def table_kinds(b) -> list[tuple[str, int, float]]:
 
     if isinstance(b, PureEndowment):
         return []
+    insurance = "moment-of-death" if b.timing == "moment-of-death" else "insurance"
     if isinstance(b, Endowment):
-        return [("insurance", _frequency(b), 0.0)]
+        return [(insurance, _frequency(b), 0.0)]
     if isinstance(b, LifeAnnuity):
         return [(b.timing, _frequency(b), float(b.escalation))]
     if b.increasing or b.decreasing:
         return [("increasing", _frequency(b), 0.0)]
-    return [("insurance", _frequency(b), float(b.escalation))]
+    return [(insurance, _frequency(b), float(b.escalation))]
 
 
 def _moments(lives: ExactLives, b, tables_for, sign: float):
@@ -710,7 +766,7 @@ def future_values(lives: ExactLives, age, duration, b, t: np.ndarray, tables_for
     from .amounts import year_amounts
     from .values import Endowment, LifeAnnuity, PureEndowment
 
-    if isinstance(b, LifeAnnuity) and b.guarantee > 0:
+    if (isinstance(b, LifeAnnuity) and b.guarantee > 0) or getattr(b, "timing", "") in CONTINUOUS:
         return None
     model, loc, v = lives.model, lives.loc, lives.v
     n_lives = loc.row.size

@@ -306,3 +306,29 @@ def test_reserves_of_a_quote_satisfy_the_recursion():
     rhs = q * 1.0 + (1.0 - q) * reserve[1:]
     np.testing.assert_allclose(lhs, rhs, rtol=1e-10, atol=1e-13)
     assert abs(reserve[0]) < 1e-12 and abs(reserve[-1]) < 1e-12
+
+
+CONTINUOUS_BENEFITS = [
+    LifeAnnuity(timing="continuous"),
+    LifeAnnuity(timing="continuous", term=20, deferral=2, guarantee=5),
+    LifeAnnuity(timing="continuous", escalation=0.02),
+    LifeInsurance(timing="moment-of-death", term=20),
+    LifeInsurance(timing="moment-of-death", escalation=0.03, term=15),
+    Endowment(20, timing="moment-of-death"),
+]
+
+
+@pytest.mark.parametrize("kind", MODELS)
+def test_continuous_benefits_from_the_tables_equal_the_general_path(kind):
+    """Continuous annuities and insurances at the moment of death: two Gauss–Legendre panels
+    per policy year on the tables' side, the general path's panels on the other."""
+    model = MODELS[kind]()
+    age, duration = _lives(kind, 2_000, np.random.default_rng([7, len(kind)]))
+    fast = Valuation(model, age, duration, I5)
+    slow = Valuation(model, age, duration, I5, fast=False)
+    for b in CONTINUOUS_BENEFITS:
+        f1, f2 = fast.moments(b)
+        s1, s2 = slow.moments(b)
+        assert _relative(f1, s1) <= 1e-12, b
+        assert _relative(f2, s2) <= 1e-12, b
+    assert exact_values.CACHE.built(model, exact_values.TableKey(0.05, 1, 0.0, "moment-of-death"))
