@@ -68,6 +68,17 @@ def _relative(fast, slow):
     return float(np.max(np.abs(fast - slow) / np.maximum(np.abs(slow), 1e-300)))
 
 
+def _assert_paths_agree(model, age, duration, discount, benefits, rtol=1e-12):
+    """Both moments of every benefit, the tables' path against the general path."""
+    fast = Valuation(model, age, duration, discount)
+    slow = Valuation(model, age, duration, discount, fast=False)
+    for b in benefits:
+        f1, f2 = fast.moments(b)
+        s1, s2 = slow.moments(b)
+        assert _relative(f1, s1) <= rtol, b
+        assert _relative(f2, s2) <= rtol, b
+
+
 @pytest.mark.parametrize("kind", MODELS)
 @pytest.mark.parametrize("rate,lives", [(0.05, 10_000), (0.0, 2_000), (0.12, 2_000)])
 def test_tables_equal_the_general_path_at_random_exact_ages(kind, rate, lives):
@@ -75,24 +86,11 @@ def test_tables_equal_the_general_path_at_random_exact_ages(kind, rate, lives):
     rng = np.random.default_rng([int(rate * 100), len(kind)])
     discount = Discount.constant(rate)
     age, duration = _lives(kind, lives, rng)
-    fast = Valuation(model, age, duration, discount)
-    slow = Valuation(model, age, duration, discount, fast=False)
-    for b in BENEFITS:
-        f1, f2 = fast.moments(b)
-        s1, s2 = slow.moments(b)
-        assert _relative(f1, s1) <= 1e-12, b
-        assert _relative(f2, s2) <= 1e-12, b
+    _assert_paths_agree(model, age, duration, discount, BENEFITS)
     # whole-life monthly payments are 1,200 payments a life on the general path: fewer lives
     few = slice(0, 500)
-    fast = Valuation(model, age[few], duration[few], discount)
-    slow = Valuation(model, age[few], duration[few], discount, fast=False)
-    for b in WHOLE_LIFE_MONTHLY:
-        if rate < b.escalation:
-            continue
-        f1, f2 = fast.moments(b)
-        s1, s2 = slow.moments(b)
-        assert _relative(f1, s1) <= 1e-12, b
-        assert _relative(f2, s2) <= 1e-12, b
+    _assert_paths_agree(model, age[few], duration[few], discount,
+                        [b for b in WHOLE_LIFE_MONTHLY if b.escalation <= rate])
 
 
 def test_the_tables_are_what_values_the_lives():
@@ -324,11 +322,5 @@ def test_continuous_benefits_from_the_tables_equal_the_general_path(kind):
     per policy year on the tables' side, the general path's panels on the other."""
     model = MODELS[kind]()
     age, duration = _lives(kind, 2_000, np.random.default_rng([7, len(kind)]))
-    fast = Valuation(model, age, duration, I5)
-    slow = Valuation(model, age, duration, I5, fast=False)
-    for b in CONTINUOUS_BENEFITS:
-        f1, f2 = fast.moments(b)
-        s1, s2 = slow.moments(b)
-        assert _relative(f1, s1) <= 1e-12, b
-        assert _relative(f2, s2) <= 1e-12, b
+    _assert_paths_agree(model, age, duration, I5, CONTINUOUS_BENEFITS)
     assert exact_values.CACHE.built(model, exact_values.TableKey(0.05, 1, 0.0, "moment-of-death"))
