@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 from core_bases import BUILDERS, SELECT_START, is_select, last_age, model
 
-from service.core import expansion, tables, transforms
+from service.core import expansion, lifetime, tables, transforms
 from service.core.lifetime import Located, YearGridModel, place_on_select_rows
 
 N_LIVES = 10_000
@@ -100,11 +100,18 @@ def test_most_years_are_expanded(name):
     assert covered >= 0.6, covered
 
 
+@pytest.mark.parametrize("built", [True, False], ids=["expanded", "direct"])
 @pytest.mark.parametrize("name", GRID_NAMES)
-def test_a_life_alone_and_in_a_mixed_batch_give_the_same_bits(name):
+def test_a_life_alone_and_in_a_mixed_batch_give_the_same_bits(name, built, monkeypatch):
     """One life takes the plain-float path, a batch the numpy path; whole ages, exact ages and
-    years without an expansion share a batch. Every life gets the same bits either way."""
-    m = _model(name)
+    years without an expansion share a batch. Every life gets the same bits either way, on a
+    basis with its expansions built (as a stored basis has from its load) and on one that
+    still computes exact ages directly (an inline basis before enough lives pay for them)."""
+    m = BUILDERS[name]() if name in BUILDERS else _model(name)  # a fresh model
+    if built:
+        assert m.exact_ages is not None
+    else:
+        monkeypatch.setattr(lifetime, "EXPANSION_AFTER_LIVES", 10**12)
     age, duration = _lives(name, m, n=300, seed=11)
     if "select" not in name:
         age[::7] = np.floor(age[::7])  # some whole ages
@@ -116,6 +123,7 @@ def test_a_life_alone_and_in_a_mixed_batch_give_the_same_bits(name):
             assert alone[k][0] == batch[k][i], (i, k, age[i])
         assert np.array_equal(m.complete_moments(age[i : i + 1], duration[i : i + 1], [1, 2, 8])[0],
                               moments[i])
+    assert (m._exact_ages is not None) == built  # the state compared is the one intended
 
 
 def test_a_year_the_polynomial_cannot_follow_keeps_the_direct_computation():
