@@ -360,16 +360,32 @@ class Lookup:
     def segments(self, row, index, frac):
         """(segment, u) of each life; segment −1 where its year has no lookup."""
         inside = np.asarray(index).astype(np.uint64) < self.years  # negative indices wrap
-        at = (row * self.years + index) * self.fine
+        at = row * self.years
+        at += index
+        at *= self.fine
         at += (frac * self.fine).astype(np.int64)
-        if not np.all(inside):
-            at = np.where(inside, at, 0)
+        everywhere = bool(np.all(inside))
+        if not everywhere:
+            at[~inside] = 0
         seg = self.segment_of.take(at)
-        if not np.all(inside):
+        if not everywhere:
             seg[~inside] = -1
         u = frac * self.scale.take(seg)
         u += self.shift.take(seg)
         return seg, u
+
+    def evaluate_lives(self, row, index, frac):
+        """The answers of lives placed on the grid, block by block (the segments, u and the
+        polynomials of a block stay in cache): (answers (Q, N), covered (N,)), the answers
+        meaningless where ``covered`` is False (the year has no lookup)."""
+        out = np.empty((self.coef.shape[1] - (1 if self.scaled else 0), frac.size))
+        covered = np.empty(frac.size, dtype=bool)
+        for lo in range(0, frac.size, LOOKUP_BLOCK):
+            sl = slice(lo, lo + LOOKUP_BLOCK)
+            seg, u = self.segments(row[sl], index[sl], frac[sl])
+            np.greater_equal(seg, 0, out=covered[sl])
+            self._block(seg, u, out[:, sl])
+        return out, covered
 
     def segment_one(self, row: int, index: int, frac: float) -> tuple[int, float]:
         """``segments`` for one life, in plain numbers."""
@@ -382,18 +398,20 @@ class Lookup:
 
     def evaluate(self, seg, u) -> np.ndarray:
         """The answers for lives on segments ``seg`` (all ≥ 0) at ``u``: shape (Q, N)."""
-        n_q = self.coef.shape[1] - (1 if self.scaled else 0)
-        out = np.empty((n_q, seg.size))
-        coef = self.coef
+        out = np.empty((self.coef.shape[1] - (1 if self.scaled else 0), seg.size))
         for lo in range(0, seg.size, LOOKUP_BLOCK):
-            s = seg[lo : lo + LOOKUP_BLOCK]
-            uu = u[lo : lo + LOOKUP_BLOCK]
-            v = _horner(lambda m, s=s: coef[m].take(s, axis=1), self.degree, uu)
-            if self.scaled:
-                np.divide(v[1:], v[0], out=out[:, lo : lo + LOOKUP_BLOCK])
-            else:
-                out[:, lo : lo + LOOKUP_BLOCK] = v
+            sl = slice(lo, lo + LOOKUP_BLOCK)
+            self._block(seg[sl], u[sl], out[:, sl])
         return out
+
+    def _block(self, seg, u, out) -> None:
+        """One block of lives by Horner's rule into ``out`` (Q, n)."""
+        coef = self.coef
+        v = _horner(lambda m: coef[m].take(seg, axis=1), self.degree, u)
+        if self.scaled:
+            np.divide(v[1:], v[0], out=out)
+        else:
+            out[...] = v
 
     def evaluate_one(self, seg: int, u: float) -> list[float]:
         """``evaluate`` for one life in plain floats: the same operations, so the same bits."""

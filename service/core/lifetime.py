@@ -725,16 +725,16 @@ class YearGridModel(LifetimeModel):
                 return summary
         lookup = self._lookup
         if lookup is not None:
-            seg, u = lookup.segments(loc.row, loc.index, loc.frac)
-            fast = exact & (seg >= 0)
+            answers, fast = lookup.evaluate_lives(loc.row, loc.index, loc.frac)
+            fast &= exact
             if np.all(fast):
-                return _lookup_summary(lookup.evaluate(seg, u))
+                return _lookup_summary(answers)
         else:
             fast = np.zeros_like(exact)
         out = tuple(np.empty(age.size) for _ in range(4))
         for lives, part in (
             (~exact, lambda w: self._whole_summary(loc.row[w], loc.index[w])),
-            (fast, lambda w: _lookup_summary(lookup.evaluate(seg[w], u[w]))),
+            (fast, lambda w: _lookup_summary(answers[:, w])),
             (exact & ~fast, lambda w: super(YearGridModel, self)._moment_summary(
                 age[w], duration[w])),
         ):
