@@ -21,8 +21,9 @@ from service.core.transforms import MAX_IMPROVED_RATES, MAX_IMPROVED_VALUES
 from . import definitions as d
 
 #: doubles a compiled table keeps per row and year of age: q, the cumulative hazard, one-year
-#: survival, the per-year moments, the tail moments and the curtate moments
-FLOATS_PER_YEAR = 3 + 2 * N_MOM + MAX_ORDER + 1
+#: survival, the per-year moments, the tail moments, the curtate moments and the summary at
+#: whole ages (e̊, E[T²], e, E[K²])
+FLOATS_PER_YEAR = 3 + 2 * N_MOM + MAX_ORDER + 1 + 4
 #: what a year's exact-age expansions take once built, reserved from the start (they are
 #: built on demand, after the cache has measured the basis): every expanded quantity's
 #: Chebyshev coefficients on two segments of the year, about what the compile-time checks

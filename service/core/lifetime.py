@@ -582,6 +582,10 @@ class YearGridModel(LifetimeModel):
             curt[:, j, 0] = 1.0
         self.tail_moments = tail
         self.curtate_table = curt
+        # (e̊, E[T²], e, E[K²]) at every whole age, one row each, for a one-take gather
+        self._whole_columns = np.stack(
+            [tail[..., 0], 2.0 * tail[..., 1], curt[..., 1], curt[..., 2]]
+        ).reshape(4, -1)
         self._exact_ages = None
         self._lookup = None
         self._direct_exact_lives = 0
@@ -775,9 +779,9 @@ class YearGridModel(LifetimeModel):
         return super()._moment_summary(age, duration)
 
     def _whole_summary(self, row, index):
-        tail = self.tail_moments[row, index, :2]
-        curt = self.curtate_table[row, index, 1:3]
-        return _summary(tail[:, 0], 2.0 * tail[:, 1], curt[:, 0], curt[:, 1])
+        at = row * self.tail_moments.shape[1]
+        at += index
+        return _summary(*self._whole_columns.take(at, axis=1))
 
     def span_hazard(self, age, duration, t0, t1):
         age, duration, t0, t1 = np.broadcast_arrays(
