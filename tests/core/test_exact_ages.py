@@ -222,3 +222,45 @@ def test_a_basis_too_large_to_expand_on_a_request_stays_direct():
     assert m._exact_ages is None
     direct = _direct(m, ages, np.zeros(ages.size))[0][:, 0]
     assert np.max(_rel(got, direct)) <= 1e-15
+
+
+@pytest.mark.parametrize(
+    "name", ["makeham", "gompertz", "weibull", "table-udd", "select-udd", "select-constant-force",
+             "select-balducci", "q-rated-select"]
+)
+def test_the_lookup_answers_most_exact_ages(name):
+    """The low-degree lookup, not the full expansions, answers the summary of most lives (the
+    property test above holds whichever route a life takes, so it would not see a lookup that
+    had stopped covering the years where lives are)."""
+    m = _model(name)
+    assert m.exact_ages is not None
+    age, duration = _lives(name, m, n=2_000)
+    loc = m._locate(age, duration)
+    seg, _ = m._lookup.segments(loc.row, loc.index, loc.frac)
+    assert np.mean(seg >= 0) >= 0.9
+    assert m._lookup.degree <= 6
+    if name.endswith("udd"):  # scaled by the survival, a UDD year's functions are cubics
+        assert m._lookup.degree == 3 and m._lookup.scaled
+
+
+def test_a_year_the_lookup_cannot_follow_is_left_out():
+    """A kink inside a year defeats every lookup degree: that year has no segment (its lives
+    take the full expansions or the direct computation), the others answer to rounding."""
+
+    def exact(cells, fractions):
+        f = fractions[None, :]
+        kinked = 1.0 + np.abs(f - 0.3) * (cells[:, None] == 1)
+        survival = np.exp(-0.01 * f) * np.ones((cells.size, 1))
+        columns = [survival, 30.0 * survival * kinked, 600.0 * survival, 29.0 * survival,
+                   1300.0 * survival]
+        return np.stack(columns, axis=-1)
+
+    valid = np.ones((1, 3), bool)
+    lookup = expansion.build_lookup(exact, valid, valid)
+    cells = np.array([0, 1, 1, 2])
+    frac = np.array([0.123, 0.2, 0.7, 0.777])
+    seg, u = lookup.segments(np.zeros(4, np.int64), cells, frac)
+    assert (seg >= 0).tolist() == [True, False, False, True]
+    got = lookup.evaluate(seg[[0, 3]], u[[0, 3]])  # (e̊, ½E[T²], e, E[K²]) of two lives
+    values = exact(np.array([0]), frac[[0, 3]])[0]
+    np.testing.assert_allclose(got.T, values[:, 1:] / values[:, :1], rtol=2e-14)
