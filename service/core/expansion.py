@@ -374,17 +374,25 @@ class Lookup:
         u += self.shift.take(seg)
         return seg, u
 
-    def evaluate_lives(self, row, index, frac):
+    def evaluate_lives(self, row, index, frac, finish=None, n_out: int = 0):
         """The answers of lives placed on the grid, block by block (the segments, u and the
-        polynomials of a block stay in cache): (answers (Q, N), covered (N,)), the answers
+        polynomials of a block stay in cache), or ``finish(answers, out)`` of them, which
+        writes ``n_out`` rows: (values (Q or n_out, N), covered (N,)), the values
         meaningless where ``covered`` is False (the year has no lookup)."""
-        out = np.empty((self.coef.shape[1] - (1 if self.scaled else 0), frac.size))
+        n_q = self.coef.shape[1] - (1 if self.scaled else 0)
+        out = np.empty((n_out if finish else n_q, frac.size))
         covered = np.empty(frac.size, dtype=bool)
+        answers = np.empty((n_q, min(LOOKUP_BLOCK, frac.size)))
         for lo in range(0, frac.size, LOOKUP_BLOCK):
             sl = slice(lo, lo + LOOKUP_BLOCK)
             seg, u = self.segments(row[sl], index[sl], frac[sl])
             np.greater_equal(seg, 0, out=covered[sl])
-            self._block(seg, u, out[:, sl])
+            if finish is None:
+                self._block(seg, u, out[:, sl])
+            else:
+                block = answers[:, : seg.size]
+                self._block(seg, u, block)
+                finish(block, out[:, sl])
         return out, covered
 
     def segment_one(self, row: int, index: int, frac: float) -> tuple[int, float]:

@@ -465,9 +465,17 @@ def _summary(complete, second, curtate, curtate_second):
     )
 
 
-def _lookup_summary(values):
-    """``_summary`` from a lookup's (e̊, ½E[T²], e, E[K²]) rows."""
-    return _summary(values[0], 2.0 * values[1], values[2], values[3])
+def _lookup_summary_into(values, out) -> None:
+    """``_summary`` from a lookup's (e̊, ½E[T²], e, E[K²]) rows, into the rows of ``out``
+    (the same operations, so the same bits)."""
+    complete, half_second, curtate, curtate_second = values
+    out[0] = complete
+    out[1] = curtate
+    np.multiply(half_second, 2.0, out=out[2])
+    out[2] -= complete * complete
+    np.maximum(out[2], 0.0, out=out[2])
+    np.subtract(curtate_second, curtate * curtate, out=out[3])
+    np.maximum(out[3], 0.0, out=out[3])
 
 
 def _summary_arrays(complete, second, curtate, curtate_second):
@@ -729,16 +737,17 @@ class YearGridModel(LifetimeModel):
                 return summary
         lookup = self._lookup
         if lookup is not None:
-            answers, fast = lookup.evaluate_lives(loc.row, loc.index, loc.frac)
+            summary, fast = lookup.evaluate_lives(loc.row, loc.index, loc.frac,
+                                                  _lookup_summary_into, 4)
             fast &= exact
             if np.all(fast):
-                return _lookup_summary(answers)
+                return tuple(summary)
         else:
             fast = np.zeros_like(exact)
         out = tuple(np.empty(age.size) for _ in range(4))
         for lives, part in (
             (~exact, lambda w: self._whole_summary(loc.row[w], loc.index[w])),
-            (fast, lambda w: _lookup_summary(answers[:, w])),
+            (fast, lambda w: summary[:, w]),
             (exact & ~fast, lambda w: super(YearGridModel, self)._moment_summary(
                 age[w], duration[w])),
         ):
