@@ -424,14 +424,13 @@ class Lookup:
     def evaluate_one(self, seg: int, u: float) -> list[float]:
         """``evaluate`` for one life in plain floats: the same operations, so the same bits."""
         rows = self._blocks.get(seg)
-        if rows is None:  # each quantity's coefficients from the highest power down
-            rows = self.coef[::-1, :, seg].T.tolist()
+        if rows is None:  # each quantity's highest coefficient, then the others downwards
+            rows = tuple((row[0], tuple(row[1:])) for row in self.coef[::-1, :, seg].T.tolist())
             if len(self._blocks) < MAX_CACHED_BLOCKS:
                 self._blocks[seg] = rows
         values = []
-        for row in rows:
-            b = row[0]
-            for c in row[1:]:
+        for b, lower in rows:
+            for c in lower:
                 b = b * u + c
             values.append(b)
         if self.scaled:
