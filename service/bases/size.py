@@ -21,13 +21,17 @@ from service.core.transforms import MAX_IMPROVED_RATES, MAX_IMPROVED_VALUES
 from . import definitions as d
 
 #: doubles a compiled table keeps per row and year of age: q, the cumulative hazard, one-year
-#: survival, the per-year moments, the tail moments and the curtate moments
-FLOATS_PER_YEAR = 3 + 2 * N_MOM + MAX_ORDER + 1
+#: survival, the per-year moments, the tail moments, the curtate moments and the summary at
+#: whole ages (e̊, E[T²], e, E[K²])
+FLOATS_PER_YEAR = 3 + 2 * N_MOM + MAX_ORDER + 1 + 4
 #: what a year's exact-age expansions take once built, reserved from the start (they are
 #: built on demand, after the cache has measured the basis): every expanded quantity's
 #: Chebyshev coefficients on two segments of the year, about what the compile-time checks
-#: leave on average (most years need one segment, steep ones up to eight)
-EXPANSION_BYTES_PER_YEAR = 2 * (DEGREE + 1) * (EXP_CURTATE + MAX_ORDER + 1) * 8
+#: leave on average (most years need one segment, steep ones up to eight), and the lookup's
+#: five quantities at most on sixteen segments of degree 6 with their index and scaling (a
+#: table's: one of degree 3)
+EXPANSION_BYTES_PER_YEAR = (2 * (DEGREE + 1) * (EXP_CURTATE + MAX_ORDER + 1)
+                            + 16 * ((6 + 1) * 5 + 3)) * 8
 #: a rough allowance for the Python objects of one model (not its arrays)
 OBJECT_BYTES = 2_048
 #: what a law's compiled year grid takes at most (its horizon is at most 10,000 years)

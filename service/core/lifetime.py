@@ -465,6 +465,19 @@ def _summary(complete, second, curtate, curtate_second):
     )
 
 
+def _lookup_summary_into(values, out) -> None:
+    """``_summary`` from a lookup's (e̊, ½E[T²], e, E[K²]) rows, into the rows of ``out``
+    (the same operations, so the same bits)."""
+    complete, half_second, curtate, curtate_second = values
+    out[0] = complete
+    out[1] = curtate
+    np.multiply(half_second, 2.0, out=out[2])
+    out[2] -= complete * complete
+    np.maximum(out[2], 0.0, out=out[2])
+    np.subtract(curtate_second, curtate * curtate, out=out[3])
+    np.maximum(out[3], 0.0, out=out[3])
+
+
 def _summary_arrays(complete, second, curtate, curtate_second):
     """``_summary`` for one life in plain floats: the same operations, so the same bits."""
     return (
@@ -577,7 +590,12 @@ class YearGridModel(LifetimeModel):
             curt[:, j, 0] = 1.0
         self.tail_moments = tail
         self.curtate_table = curt
+        # (e̊, E[T²], e, E[K²]) at every whole age, one row each, for a one-take gather
+        self._whole_columns = np.stack(
+            [tail[..., 0], 2.0 * tail[..., 1], curt[..., 1], curt[..., 2]]
+        ).reshape(4, -1)
         self._exact_ages = None
+        self._lookup = None
         self._direct_exact_lives = 0
 
     def _expansions(self, lives: int) -> expansion.Expansion | None:
@@ -609,6 +627,11 @@ class YearGridModel(LifetimeModel):
         if self._expansion_cost(valid) > budget:
             valid = np.zeros_like(valid)
         self._exact_ages = expansion.build(self._exact_age_functions, valid)
+        covered = self._exact_ages.cell_of >= 0
+        lookup = expansion.build_lookup(
+            lambda cells, f: self._exact_age_functions(cells, f, 2, 2), valid, covered
+        )
+        self._lookup = lookup if lookup.scale.size else None
 
     def _expansion_cost(self, valid: np.ndarray | None = None) -> int:
         """The (panel-)years expanding this basis takes (kept once counted)."""
@@ -635,14 +658,15 @@ class YearGridModel(LifetimeModel):
             steep = ~(np.diff(self.lam, axis=1) <= EXPAND_HAZARD)
         return inside & ~(steep & np.isfinite(self.lam[:, 1:]))
 
-    def _exact_age_functions(self, cells: np.ndarray, fractions: np.ndarray) -> np.ndarray:
+    def _exact_age_functions(self, cells: np.ndarray, fractions: np.ndarray, n_mom: int = N_MOM,
+                             n_orders: int = MAX_ORDER) -> np.ndarray:
         """The direct values, for lives aged j + f in the given cells (flat indices into the
-        (R, L) grid) at each fraction f: (cells, fractions, EXPANDED) holding
+        (R, L) grid) at each fraction f: (cells, fractions, 1 + n_mom + n_orders) holding
 
         * ``s`` = S(j + f)/S(j), the survival through the year to the life's age;
-        * ``s · ∫₀^∞ tⁱ ₜp dt`` for i < N_MOM: the first, partial, year in closed form (or the
+        * ``s · ∫₀^∞ tⁱ ₜp dt`` for i < n_mom: the first, partial, year in closed form (or the
           law's panels), then the tail moments at j + 1 shifted by 1 − f;
-        * ``s · E[K^k]`` for k = 1..MAX_ORDER, by the backward recursion over the years of the
+        * ``s · E[K^k]`` for k = 1..n_orders, by the backward recursion over the years of the
           row at the same fraction: K at j + f is 1 + K at j + 1 + f, given survival a year.
 
         Every term is positive; the scaling by s keeps the normalisation's pole (UDD with q
@@ -662,11 +686,11 @@ class YearGridModel(LifetimeModel):
         # curtate: C(j, f) = S(j+1+f)/S(j+f) · (C(j+1, f) shifted by one year), C = 1 at order 0
         s_next_year = np.concatenate([s[:, 1:], np.zeros_like(s[:, :1])], axis=1)
         p_year = s_out * s_next_year  # (rows, L, M)
-        curt = np.zeros((rows.size, f.size, MAX_ORDER + 1))
+        curt = np.zeros((rows.size, f.size, n_orders + 1))
         curt[..., 0] = 1.0
-        shift_one = BINOM[: MAX_ORDER + 1, : MAX_ORDER + 1].T
-        kept = np.empty((rows.size, n_years, f.size, MAX_ORDER))
-        for j in range(n_years - 1, -1, -1):
+        shift_one = BINOM[: n_orders + 1, : n_orders + 1].T
+        kept = np.empty((rows.size, n_years, f.size, n_orders))
+        for j in range(n_years - 1, int(year_of_cell.min(initial=0)) - 1, -1):
             curt = p_year[:, j, :, None] * (curt @ shift_one)
             curt[..., 0] = 1.0
             kept[:, j] = curt[..., 1:]
@@ -676,12 +700,12 @@ class YearGridModel(LifetimeModel):
         cj = np.broadcast_to(cj, (cells.size, f.size))
         cf = np.broadcast_to(f[None, :], cr.shape)
         partial = self._year_partial(cr.ravel(), cj.ravel(), cf.ravel(), 1.0 - cf.ravel())
-        partial = partial.reshape(cr.shape + (N_MOM,))
+        partial = partial.reshape(cr.shape + (N_MOM,))[..., :n_mom]
         s_cells = s[where, year_of_cell]  # (C, M)
         out_cells = s_out[where, year_of_cell]
         tail = shift_moments(
-            np.broadcast_to(self.tail_moments[row_of_cell, year_of_cell + 1][:, None, :],
-                            cr.shape + (N_MOM,)),
+            np.broadcast_to(self.tail_moments[row_of_cell, year_of_cell + 1][:, None, :n_mom],
+                            cr.shape + (n_mom,)),
             1.0 - cf,
         )
         scaled_tail = s_cells[..., None] * (partial + out_cells[..., None] * tail)
@@ -691,38 +715,82 @@ class YearGridModel(LifetimeModel):
     # ---- the hot paths ----------------------------------------------------------------------
 
     def _moment_summary(self, age, duration, term=None):
-        """Whole life: four lookups in the per-basis tables at whole ages, or one evaluation of
-        the per-year expansions at exact ages (a plain-float path for one life, with the
-        same operations as the batch path, so the same bits)."""
-        if term is None:
-            age = as_float_array(age)
-            duration = as_float_array(duration)
-            if duration.shape != age.shape:
-                duration = np.broadcast_to(duration, age.shape)
-            if age.size == 1:  # one life: plain float arithmetic on the per-basis tables
-                r, j, frac = self._locate_one(float(age[0]), float(duration[0]))
-                if frac == 0.0:
-                    e0, m1 = self.tail_moments[r, j, :2].tolist()
-                    k1, k2 = self.curtate_table[r, j, 1:3].tolist()
-                    return _summary_arrays(e0, 2.0 * m1, k1, k2)
-                expanded = self._exact_ages  # built or not: the moments below decide
-                cell = -1 if expanded is None else expanded.cell_of_one(r, j)
-                if frac > 0.0 and cell >= 0:
-                    s, u0, u1, v1, v2 = expanded.evaluate_one(cell, frac, _SUMMARY)
-                    return _summary_arrays(u0 / s, 2.0 * (u1 / s), v1 / s, v2 / s)
-                return super()._moment_summary(age, duration, term)
-            loc = self._locate(age, duration)
-            if not np.any(loc.frac > 0.0):
-                tail = self.tail_moments[loc.row, loc.index, :2]
-                curt = self.curtate_table[loc.row, loc.index, 1:3]
-                return _summary(tail[:, 0], 2.0 * tail[:, 1], curt[:, 0], curt[:, 1])
-            expanded = self._exact_ages
-            cell = None if expanded is None else expanded.cells(loc.row, loc.index)
-            if cell is not None and np.all((loc.frac > 0.0) & (cell >= 0)):
-                v = expanded.evaluate(cell, loc.frac, _SUMMARY)
-                s = v[:, 0]
-                return _summary(v[:, 1] / s, 2.0 * (v[:, 2] / s), v[:, 3] / s, v[:, 4] / s)
-        return super()._moment_summary(age, duration, term)
+        """Whole life: four lookups in the per-basis tables at whole ages; at exact ages the
+        lookup expansion (:class:`expansion.Lookup`), else the full expansions, else the
+        direct computation. One life takes a plain-float path with the same operations as
+        the batch path, so the same bits; a life's route depends only on the life."""
+        if term is not None:
+            return super()._moment_summary(age, duration, term)
+        age = as_float_array(age)
+        duration = as_float_array(duration)
+        if duration.shape != age.shape:
+            duration = np.broadcast_to(duration, age.shape)
+        if age.size == 1:
+            return self._summary_of_one(age, duration)
+        loc = self._locate(age, duration)
+        exact = loc.frac > 0.0
+        if not np.any(exact):
+            return self._whole_summary(loc.row, loc.index)
+        if self._exact_ages is None:
+            summary = self._direct_until_built(age, duration)
+            if summary is not None:
+                return summary
+        lookup = self._lookup
+        if lookup is not None:
+            summary, fast = lookup.evaluate_lives(loc.row, loc.index, loc.frac,
+                                                  _lookup_summary_into, 4)
+            fast &= exact
+            if np.all(fast):
+                return tuple(summary)
+        else:
+            fast = np.zeros_like(exact)
+        out = tuple(np.empty(age.size) for _ in range(4))
+        for lives, part in (
+            (~exact, lambda w: self._whole_summary(loc.row[w], loc.index[w])),
+            (fast, lambda w: summary[:, w]),
+            (exact & ~fast, lambda w: super(YearGridModel, self)._moment_summary(
+                age[w], duration[w])),
+        ):
+            if np.any(lives):
+                for column, values in zip(out, part(lives)):
+                    column[lives] = values
+        return out
+
+    def _direct_until_built(self, age, duration):
+        """The summary of lives on a basis whose expansions are not built: direct (counting
+        the lives toward building them), or None when these lives made it build them, to be
+        answered as it now answers every life."""
+        summary = super()._moment_summary(age, duration)
+        return summary if self._exact_ages is None else None
+
+    def _summary_of_one(self, age, duration):
+        """``_moment_summary`` of one life in plain floats (``age``, ``duration``: shape (1,))."""
+        r, j, frac = self._locate_one(float(age[0]), float(duration[0]))
+        if frac == 0.0:
+            e0, m1 = self.tail_moments[r, j, :2].tolist()
+            k1, k2 = self.curtate_table[r, j, 1:3].tolist()
+            return _summary_arrays(e0, 2.0 * m1, k1, k2)
+        if self._exact_ages is None:
+            summary = self._direct_until_built(age, duration)
+            if summary is not None:
+                return summary
+        lookup = self._lookup
+        if lookup is not None:
+            seg, u = lookup.segment_one(r, j, frac)
+            if seg >= 0:
+                e0, m1, k1, k2 = lookup.evaluate_one(seg, u)
+                return _summary_arrays(e0, 2.0 * m1, k1, k2)
+        expanded = self._exact_ages
+        cell = expanded.cell_of_one(r, j)
+        if cell >= 0:
+            s, u0, u1, v1, v2 = expanded.evaluate_one(cell, frac, _SUMMARY)
+            return _summary_arrays(u0 / s, 2.0 * (u1 / s), v1 / s, v2 / s)
+        return super()._moment_summary(age, duration)
+
+    def _whole_summary(self, row, index):
+        at = row * self.tail_moments.shape[1]
+        at += index
+        return _summary(*self._whole_columns.take(at, axis=1))
 
     def span_hazard(self, age, duration, t0, t1):
         age, duration, t0, t1 = np.broadcast_arrays(

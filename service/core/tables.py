@@ -231,6 +231,7 @@ class TableSet(YearGridModel):
         for r, (_, rates) in enumerate(rows):
             q[r, : len(rates)] = rates
         self.row_start = np.array([float(start) for start, _ in rows])
+        self._row_starts = self.row_start.tolist()
         self._set_rates(q, np.array([len(rates) for _, rates in rows]))
 
     def _set_rates(self, q: np.ndarray, row_length: np.ndarray) -> None:
@@ -272,11 +273,21 @@ class TableSet(YearGridModel):
     def _row_of(self, age, duration) -> np.ndarray:
         return np.zeros(np.shape(age), dtype=np.int64)
 
+    def _row_of_one(self, age: float, duration: float) -> int:
+        """``_row_of`` for one life, in plain numbers."""
+        return int(self._row_of(np.array([age]), np.array([duration]))[0])
+
     def _locate(self, age, duration) -> Located:
         row = self._row_of(age, duration)
         y = age - self.row_start[row]
         j = np.floor(y)
         return Located(row, j.astype(np.int64), y - j)
+
+    def _locate_one(self, age: float, duration: float) -> tuple[int, int, float]:
+        row = self._row_of_one(age, duration)
+        y = age - self._row_starts[row]
+        j = math.floor(y)
+        return row, j, y - j
 
     def check_lives(self, age, duration) -> None:
         age = np.asarray(age, float)
@@ -314,6 +325,9 @@ class TableSet(YearGridModel):
 
 class LifeTable(TableSet):
     """q_x by whole age from ``start_age``, closing with q = 1."""
+
+    def _row_of_one(self, age: float, duration: float) -> int:
+        return 0
 
     def __init__(self, start_age: int, q: Sequence[float], fractional_ages: str = "udd"):
         start = _check_whole_age("start_age", start_age)
@@ -398,6 +412,19 @@ class SelectTable(TableSet):
         sel = np.rint(age - duration) - self.start_age
         in_select = (duration < self.select_period) & (sel >= 0) & (sel < self.n_select_rows)
         return np.where(in_select, sel, self.n_select_rows).astype(np.int64)
+
+    def _row_of_one(self, age: float, duration: float) -> int:
+        sel = round(age - duration) - self.start_age  # half to even, as np.rint
+        if duration < self.select_period and 0 <= sel < self.n_select_rows:
+            return sel
+        return self.n_select_rows
+
+    def _valuable_years(self) -> np.ndarray:
+        """A select row's lives are within the select period (after it they use the
+        ultimate row), so only its first ``select_period`` years are expanded."""
+        valid = super()._valuable_years()
+        valid[: self.n_select_rows, self.select_period :] = False
+        return valid
 
     def _check_rows(self, age, duration) -> None:
         sel_age = age - duration

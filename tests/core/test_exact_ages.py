@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 from core_bases import BUILDERS, SELECT_START, is_select, last_age, model
 
-from service.core import expansion, tables, transforms
+from service.core import expansion, lifetime, tables, transforms
 from service.core.lifetime import Located, YearGridModel, place_on_select_rows
 
 N_LIVES = 10_000
@@ -100,11 +100,18 @@ def test_most_years_are_expanded(name):
     assert covered >= 0.6, covered
 
 
+@pytest.mark.parametrize("built", [True, False], ids=["expanded", "direct"])
 @pytest.mark.parametrize("name", GRID_NAMES)
-def test_a_life_alone_and_in_a_mixed_batch_give_the_same_bits(name):
+def test_a_life_alone_and_in_a_mixed_batch_give_the_same_bits(name, built, monkeypatch):
     """One life takes the plain-float path, a batch the numpy path; whole ages, exact ages and
-    years without an expansion share a batch. Every life gets the same bits either way."""
-    m = _model(name)
+    years without an expansion share a batch. Every life gets the same bits either way, on a
+    basis with its expansions built (as a stored basis has from its load) and on one that
+    still computes exact ages directly (an inline basis before enough lives pay for them)."""
+    m = BUILDERS[name]() if name in BUILDERS else _model(name)  # a fresh model
+    if built:
+        assert m.exact_ages is not None
+    else:
+        monkeypatch.setattr(lifetime, "EXPANSION_AFTER_LIVES", 10**12)
     age, duration = _lives(name, m, n=300, seed=11)
     if "select" not in name:
         age[::7] = np.floor(age[::7])  # some whole ages
@@ -116,6 +123,7 @@ def test_a_life_alone_and_in_a_mixed_batch_give_the_same_bits(name):
             assert alone[k][0] == batch[k][i], (i, k, age[i])
         assert np.array_equal(m.complete_moments(age[i : i + 1], duration[i : i + 1], [1, 2, 8])[0],
                               moments[i])
+    assert (m._exact_ages is not None) == built  # the state compared is the one intended
 
 
 def test_a_year_the_polynomial_cannot_follow_keeps_the_direct_computation():
@@ -214,3 +222,45 @@ def test_a_basis_too_large_to_expand_on_a_request_stays_direct():
     assert m._exact_ages is None
     direct = _direct(m, ages, np.zeros(ages.size))[0][:, 0]
     assert np.max(_rel(got, direct)) <= 1e-15
+
+
+@pytest.mark.parametrize(
+    "name", ["makeham", "gompertz", "weibull", "table-udd", "select-udd", "select-constant-force",
+             "select-balducci", "q-rated-select"]
+)
+def test_the_lookup_answers_most_exact_ages(name):
+    """The low-degree lookup, not the full expansions, answers the summary of most lives (the
+    property test above holds whichever route a life takes, so it would not see a lookup that
+    had stopped covering the years where lives are)."""
+    m = _model(name)
+    assert m.exact_ages is not None
+    age, duration = _lives(name, m, n=2_000)
+    loc = m._locate(age, duration)
+    seg, _ = m._lookup.segments(loc.row, loc.index, loc.frac)
+    assert np.mean(seg >= 0) >= 0.9
+    assert m._lookup.degree <= 6
+    if name.endswith("udd"):  # scaled by the survival, a UDD year's functions are cubics
+        assert m._lookup.degree == 3 and m._lookup.scaled
+
+
+def test_a_year_the_lookup_cannot_follow_is_left_out():
+    """A kink inside a year defeats every lookup degree: that year has no segment (its lives
+    take the full expansions or the direct computation), the others answer to rounding."""
+
+    def exact(cells, fractions):
+        f = fractions[None, :]
+        kinked = 1.0 + np.abs(f - 0.3) * (cells[:, None] == 1)
+        survival = np.exp(-0.01 * f) * np.ones((cells.size, 1))
+        columns = [survival, 30.0 * survival * kinked, 600.0 * survival, 29.0 * survival,
+                   1300.0 * survival]
+        return np.stack(columns, axis=-1)
+
+    valid = np.ones((1, 3), bool)
+    lookup = expansion.build_lookup(exact, valid, valid)
+    cells = np.array([0, 1, 1, 2])
+    frac = np.array([0.123, 0.2, 0.7, 0.777])
+    seg, u = lookup.segments(np.zeros(4, np.int64), cells, frac)
+    assert (seg >= 0).tolist() == [True, False, False, True]
+    got = lookup.evaluate(seg[[0, 3]], u[[0, 3]])  # (e̊, ½E[T²], e, E[K²]) of two lives
+    values = exact(np.array([0]), frac[[0, 3]])[0]
+    np.testing.assert_allclose(got.T, values[:, 1:] / values[:, :1], rtol=2e-14)
