@@ -50,12 +50,15 @@ KINDS = {
     "increasing": ("insurance", "insurance_second", "increasing", "increasing_second",
                    "square_second"),
 }
+#: lives per block of a lookup, so that its working arrays stay in cache
+LOOKUP_BLOCK = 4096
 #: the kinds valued by quadrature within each policy year
 CONTINUOUS = ("continuous", "moment-of-death")
 #: the degree of the polynomials on each segment, and at most 2**MAX_LEVEL segments per 1/m
-#: year: degree 8 reproduces a year of the usual bases to about 3e-15 (measured); the steep
-#: last years of a table take more segments
+#: year: degree 8 reproduces a year of the usual bases to about 3e-15, degree 6 a twelfth of a
+#: year as well (measured); the steep last years of a table take more segments
 DEGREE = 8
+DEGREE_WITHIN_YEAR = 6
 MAX_LEVEL = 5
 #: the most cell-segments (years of age × 1/m segments) a table may expand: at
 #: SECONDS_PER_CELL_SEGMENT, at most about 0.6 s once; a larger basis keeps the general path
@@ -116,8 +119,8 @@ class ExactTables:
         have = cell >= 0
         c = np.where(have, cell, 0)
         out = np.empty((cell.size, len(self.quantities)))
-        for lo in range(0, cell.size, expansion.BLOCK):
-            sl = slice(lo, lo + expansion.BLOCK)
+        for lo in range(0, cell.size, LOOKUP_BLOCK):
+            sl = slice(lo, lo + LOOKUP_BLOCK)
             cs = c[sl]
             count = e.count[cs]
             scaled = frac[sl] * count
@@ -127,7 +130,7 @@ class ExactTables:
             block = np.take(self._coef_by_order, first + k.astype(np.int64), axis=1,
                             mode="clip")
             u = ((scaled - k) * 2.0 - 1.0)[:, None]
-            out[sl] = expansion._clenshaw(block.__getitem__, e.degree, u)
+            out[sl] = _clenshaw_in_place(block, e.degree, u)
         if not have.all():
             out[~have] = np.nan
         error = np.where(have, e.error[c], np.inf)
@@ -157,6 +160,25 @@ class ExactTables:
             b1, b2 = [b * two_u - c + d for b, c, d in zip(b1, b2, block[m])], b1
         out = [b * u - c + d for b, c, d in zip(b1, b2, block[0])]
         return out, float(e.error[cell])
+
+
+def _clenshaw_in_place(block: np.ndarray, degree: int, u: np.ndarray) -> np.ndarray:
+    """expansion._clenshaw on coefficients ``block[m]`` (n, Q), reusing three buffers: the
+    same operations in the same order (so the same bits as a one-life lookup), without a new
+    array per step."""
+    two_u = u + u
+    b1 = block[degree].copy()
+    b2 = np.zeros_like(b1)
+    b0 = np.empty_like(b1)
+    for m in range(degree - 1, 0, -1):
+        np.multiply(b1, two_u, out=b0)
+        b0 -= b2
+        b0 += block[m]
+        b2, b1, b0 = b1, b0, b2
+    np.multiply(b1, u, out=b0)
+    b0 -= b2
+    b0 += block[0]
+    return b0
 
 
 # ---- building ----------------------------------------------------------------------------------
@@ -374,7 +396,8 @@ def _certain_year(key: TableKey) -> float:
 
 def build_tables(model: YearGridModel, key: TableKey) -> ExactTables:
     built = expansion.build(_exact_function(model, key, _certain_year(key)),
-                            _cells_to_build(model), segments=key.frequency, degree=DEGREE,
+                            _cells_to_build(model), segments=key.frequency,
+                            degree=DEGREE if key.frequency == 1 else DEGREE_WITHIN_YEAR,
                             max_level=MAX_LEVEL, left_continuous=True)
     return ExactTables(model, key, built)
 
