@@ -21,9 +21,15 @@ recursion itself at points between the nodes. A life is then a lookup at x, x + 
 and x + n and the exact survival between them, and temporary, deferred and guaranteed benefits
 follow by the identities of the whole-age fast path (values.py).
 
-Tables are kept per (model, rate, frequency, escalation, kind) in one bounded cache. A cell
-that no polynomial reproduces (the steep last years of a law) has none, and its lives take the
-general path, which is exact; nothing is answered from a polynomial that failed its check.
+The continuous annuity and the insurance at the moment of death take each policy year by
+Gauss–Legendre quadrature in two panels, either side of the whole age the year crosses.
+Policy values at a duration t take the payments of the policy year that t falls in directly,
+and the rest from lookups at the next anniversary.
+
+Tables are kept per (model, rate, frequency, escalation, kind) in one bounded cache, built on
+first use. A cell that no polynomial reproduces (the steep last years of a table) has none,
+and its lives take the general path, which is exact; nothing is answered from a polynomial
+that failed its check.
 """
 
 from __future__ import annotations
@@ -427,14 +433,18 @@ class _Cache:
     gives the same bits, and a life has the same bits alone as in any batch."""
 
     def __init__(self):
-        self._lock = threading.Lock()
+        # re-entrant: a model's weak reference may call _drop_model from a collection that
+        # runs while this thread holds the lock
+        self._lock = threading.RLock()
         self._tables: OrderedDict = OrderedDict()
         self.nbytes = 0
 
     def _drop_model(self, ref):
         with self._lock:
-            for k in [k for k in self._tables if k[0] is ref]:
-                self.nbytes -= self._tables.pop(k).nbytes
+            for k in [k for k in list(self._tables) if k[0] is ref]:
+                gone = self._tables.pop(k, None)
+                if gone is not None:
+                    self.nbytes -= gone.nbytes
 
     def built(self, model, key: TableKey) -> bool:
         ref = _REFS.get(model)

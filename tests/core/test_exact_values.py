@@ -325,3 +325,17 @@ def test_continuous_benefits_from_the_tables_equal_the_general_path(kind):
     age, duration = _lives(kind, 300, np.random.default_rng([7, len(kind)]))
     _assert_paths_agree(model, age, duration, I5, CONTINUOUS_BENEFITS)
     assert exact_values.CACHE.built(model, exact_values.TableKey(0.05, 1, 0.0, "moment-of-death"))
+
+
+def test_a_basis_dropped_takes_its_tables_with_it():
+    """The tables hold no reference to their basis: when the basis goes, so do its tables
+    (the cache's bytes come back)."""
+    import gc
+
+    cache = exact_values._Cache()
+    model = tables.LifeTable(30, Q, "udd")
+    cache.get(model, exact_values.TableKey(0.04, 1, 0.0, "insurance"))
+    assert cache.nbytes > 0
+    del model
+    gc.collect()
+    assert cache.nbytes == 0 and not cache._tables
