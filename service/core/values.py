@@ -1171,9 +1171,9 @@ class Valuation:
         return first, second
 
     def _exact_moments(self, b: Benefit, lives: exact_values.ExactLives, index):
-        """The lives at ``index`` by the exact-age tables (exact_values.py) where they are
-        built, and by the general path where a life's years have no polynomials, the
-        benefit is not on the tables' path, or the tables are not (yet) worth building."""
+        """The lives at ``index`` by the exact-age tables (exact_values.py), and by the general
+        path where a life's years have no polynomials, the benefit is not on the tables'
+        path, or the basis is too large to expand."""
         if not exact_values.on_path(b, lives.rate):
             return self._general_moments(b, index)
         model = self.model
