@@ -190,18 +190,6 @@ def _clenshaw_in_place(block: np.ndarray, degree: int, u: np.ndarray) -> np.ndar
 # ---- building ----------------------------------------------------------------------------------
 
 
-def _canonical(model, row, index):
-    """The (row, year) whose future is the same as that of (row, year): on a select table a
-    select row past the select period is the ultimate row at the same age."""
-    if type(model) is not SelectTable:
-        return row, index
-    ult = model.row_start.size - 1
-    after = (row < ult) & (index >= model.select_period)
-    start = model.row_start
-    return (np.where(after, ult, row),
-            np.where(after, (start[row] + index - start[ult]).astype(np.int64), index))
-
-
 def _step_hazards(model, rows, years, f, m):
     """h[r, y, k, s]: the hazard over the s-th 1/m step of the policy year from age y + fₖ of
     each row, (R, Y, F, m); each step within one year of age, or across the next whole age."""
@@ -380,15 +368,6 @@ def _exact_function(model, key: TableKey, certain: float):
     return exact
 
 
-def _cells_to_build(model) -> np.ndarray:
-    """The (row, year) cells a life can reach: the model's valuable years, and on a select
-    table only the select years of the select rows (their later years are the ultimate row's)."""
-    valid = model._valuable_years().copy()
-    if type(model) is SelectTable:
-        valid[:-1, model.select_period:] = False
-    return valid
-
-
 def _certain_year(key: TableKey) -> float:
     """Σ_s v^(t_s) / m over the m payment times t_s of one policy year (an annuity's kinds),
     or ∫₀¹ vˢ ds paid continuously."""
@@ -402,7 +381,7 @@ def _certain_year(key: TableKey) -> float:
 
 def build_tables(model: YearGridModel, key: TableKey) -> ExactTables:
     built = expansion.build(_exact_function(model, key, _certain_year(key)),
-                            _cells_to_build(model), segments=key.frequency,
+                            model._valuable_years(), segments=key.frequency,
                             degree=DEGREE if key.frequency == 1 else DEGREE_WITHIN_YEAR,
                             max_level=MAX_LEVEL, left_continuous=True)
     return ExactTables(model, key, built)
@@ -419,7 +398,7 @@ def build_seconds(model: YearGridModel, rate: float, benefits) -> float:
 
 def build_cost(model: YearGridModel, key: TableKey) -> int:
     """Cell-segments to build: a bound on the work and the bytes of a table."""
-    return int(_cells_to_build(model).sum()) * key.frequency
+    return int(model._valuable_years().sum()) * key.frequency
 
 
 # ---- the cache ---------------------------------------------------------------------------------
@@ -586,7 +565,7 @@ class ExactLives:
         got = self._lookups.get(key)
         if got is None:
             loc = self.loc
-            row, index = _canonical(self.model, loc.row, loc.index + k)
+            row, index = self.model._same_future(loc.row, loc.index + k)
             # where a life cannot be alive at x + k, its values there are 0, exactly
             alive = self.survival(0, k) > 0.0
             if self.scalar:
@@ -784,7 +763,7 @@ def _grid_at(lives: ExactLives, tables: ExactTables, k: np.ndarray):
     row = np.broadcast_to(loc.row[:, None], k.shape).ravel()
     index = (loc.index[:, None] + k).ravel()
     frac = np.broadcast_to(loc.frac[:, None], k.shape).ravel()
-    row, index = _canonical(lives.model, row, index)
+    row, index = lives.model._same_future(row, index)
     out, error = tables.at(row, index, frac)
     return out.reshape(k.shape + (out.shape[-1],)), error.reshape(k.shape)
 

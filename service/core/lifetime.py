@@ -643,6 +643,11 @@ class YearGridModel(LifetimeModel):
             )
         return self._cost_of_expanding
 
+    def _same_future(self, row, index):
+        """The (row, year) cells whose future is that of (row, year): themselves here (a select
+        table maps a select row past its select period to the ultimate row)."""
+        return row, index
+
     def _valuable_years(self) -> np.ndarray:
         """(R, L): the years of age in which a life of the basis can be: inside its row and
         below the row's limit."""
@@ -731,10 +736,9 @@ class YearGridModel(LifetimeModel):
         exact = loc.frac > 0.0
         if not np.any(exact):
             return self._whole_summary(loc.row, loc.index)
-        if self._exact_ages is None:
-            summary = self._direct_until_built(age, duration)
-            if summary is not None:
-                return summary
+        summary = self._direct_until_built(age, duration)
+        if summary is not None:
+            return summary
         lookup = self._lookup
         if lookup is not None:
             summary, fast = lookup.evaluate_lives(loc.row, loc.index, loc.frac,
@@ -758,8 +762,10 @@ class YearGridModel(LifetimeModel):
 
     def _direct_until_built(self, age, duration):
         """The summary of lives on a basis whose expansions are not built: direct (counting
-        the lives toward building them), or None when these lives made it build them, to be
-        answered as it now answers every life."""
+        the lives toward building them); None when they are built, or these lives made it
+        build them, to be answered as it now answers every life."""
+        if self._exact_ages is not None:
+            return None
         summary = super()._moment_summary(age, duration)
         return summary if self._exact_ages is None else None
 
@@ -770,10 +776,9 @@ class YearGridModel(LifetimeModel):
             e0, m1 = self.tail_moments[r, j, :2].tolist()
             k1, k2 = self.curtate_table[r, j, 1:3].tolist()
             return _summary_arrays(e0, 2.0 * m1, k1, k2)
-        if self._exact_ages is None:
-            summary = self._direct_until_built(age, duration)
-            if summary is not None:
-                return summary
+        summary = self._direct_until_built(age, duration)
+        if summary is not None:
+            return summary
         lookup = self._lookup
         if lookup is not None:
             seg, u = lookup.segment_one(r, j, frac)

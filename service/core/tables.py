@@ -419,6 +419,14 @@ class SelectTable(TableSet):
             return sel
         return self.n_select_rows
 
+    def _same_future(self, row, index):
+        """A select row past its select period is the ultimate row at the same age."""
+        ult = self.n_select_rows
+        after = (row < ult) & (index >= self.select_period)
+        start = self.row_start
+        return (np.where(after, ult, row),
+                np.where(after, (start[row] + index - start[ult]).astype(np.int64), index))
+
     def _valuable_years(self) -> np.ndarray:
         """A select row's lives are within the select period (after it they use the
         ultimate row), so only its first ``select_period`` years are expanded."""
