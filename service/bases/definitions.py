@@ -210,9 +210,9 @@ class Adjusted(BasisDefinition, tag="adjusted"):
     q_multiplier: Union[described(NonNegative, "q' = min(1, m q) at each whole age; tables only"), None] = None  # type: ignore[valid-type]
     force_multiplier: Union[described(NonNegative, "μ' = m μ, so ₜp' = (ₜp)^m; any basis"), None] = None  # type: ignore[valid-type]
     extra_q: Union[described(Rate, "q' = min(1, q + e) at each whole age; tables only"), None] = None  # type: ignore[valid-type]
-    extra_q_years: Union[described(Years, "years of age the extra_q applies to, the year the life is in first (all when absent)"), None] = None  # type: ignore[valid-type]
+    extra_q_years: Union[described(Years, "policy years the extra_q applies to, counted from the life's age (durations 0 to n; all years when absent)"), None] = None  # type: ignore[valid-type]
     extra_force: Union[described(AnyNumber, "μ' = μ + δ (negative allowed while μ' stays ≥ 0)"), None] = None  # type: ignore[valid-type]
-    extra_force_years: Union[described(Years, "years after the life's age the extra_force applies to (all when absent)"), None] = None  # type: ignore[valid-type]
+    extra_force_years: Union[described(Years, "policy years the extra_force applies to, counted from the life's age (durations 0 to n; all years when absent)"), None] = None  # type: ignore[valid-type]
 
 
 class RatesByAge(msgspec.Struct, frozen=True, forbid_unknown_fields=True, kw_only=True):
@@ -306,7 +306,7 @@ CROSS_FIELD_RULES: dict[str, tuple[str, ...]] = {
         "2. q_multiplier; 3. force_multiplier; 4. extra_q; 5. extra_force",
         "q_multiplier and extra_q need a table as base; extra_q cannot follow "
         "force_multiplier in one rating (nest two adjusted bases)",
-        "extra_q_years counts years of age: the year the life is in is the first",
+        "extra_q_years and extra_force_years count policy years from the life's age (durations 0 to n)",
         "extra_force keeps the force at least 0 at every age of the base",
         "force_multiplier 0 needs an extra_force",
         f"nesting depth at most {MAX_NESTING}",

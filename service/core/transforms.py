@@ -6,11 +6,13 @@ A rating (:func:`rated`) applies, in this order:
 2. ``q_multiplier`` m: q' = min(1, m q) at each whole age of the table (tables only);
 3. ``force_multiplier`` m: μ' = m μ, so ₜp' = (ₜp)^m;
 4. ``extra_q`` e: q' = min(1, q + e) at each whole age of the table (tables only), for the
-   first ``extra_q_years`` n years of age when given: the year of age the life is in
-   (from its valuation age x + s to the next whole age) counts as the first, so the extra
-   covers durations from 0 to n − frac(x + s);
-5. ``extra_force`` δ: μ' = μ + δ, for the first ``extra_force_years`` n years after the
-   life's valuation age when given (durations 0 to n).
+   first ``extra_q_years`` n policy years when given (durations 0 to n after the life's
+   valuation age x + s, whatever the fraction of x + s);
+5. ``extra_force`` δ: μ' = μ + δ, for the first ``extra_force_years`` n policy years when
+   given (durations 0 to n).
+
+Both time-limited extras count years from the life's valuation point, the way underwriters
+state them: an extra of 3 per mille for 5 years at age 29.9 covers durations 0 to 5.
 
 Rates stay rates: a q multiplier or an extra q for all years builds a new table with the
 same fractional-age assumption (a rate that reaches 1 closes its row there; the closing 1
@@ -41,8 +43,9 @@ RATING_ORDER = (
     "q_multiplier: q = min(1, m q) at each whole age of the table",
     "force_multiplier: μ = m μ",
     "extra_q: q = min(1, q + e) at each whole age of the table, for the first extra_q_years "
-    "years of age (the year the life is in counts as the first)",
-    "extra_force: μ = μ + δ for the first extra_force_years years after the life's age",
+    "policy years (durations 0 to n after the life's age)",
+    "extra_force: μ = μ + δ for the first extra_force_years policy years (durations 0 to n "
+    "after the life's age)",
 )
 
 #: the longest table (rates) that can be improved: one row per cohort makes L² values
@@ -283,26 +286,19 @@ def _point_force(model: LifetimeModel, age, duration) -> np.ndarray:
 
 
 class Spliced(GenericModel):
-    """``first`` for the first n years, then ``then`` from age x + n (duration d + n).
+    """``first`` for the first n years (durations 0 to n), then ``then`` from age x + n
+    (duration d + n)."""
 
-    With ``whole_ages`` the n years are years of age: the year the life is in counts as the
-    first, so the switch is at duration τ = n − frac(x).
-    """
-
-    def __init__(self, first: LifetimeModel, then: LifetimeModel, years: float, whole_ages: bool):
+    def __init__(self, first: LifetimeModel, then: LifetimeModel, years: float):
         self.first = first
         self.then = then
         self.years = float(years)
-        self.whole_ages = whole_ages
         self.kind = then.kind
         self.limiting_age = min(first.limiting_age, then.limiting_age)
         self.max_age = min(first.max_age, then.max_age)
 
     def _switch(self, age):
-        age = np.asarray(age, float)
-        if self.whole_ages:
-            return self.years - (age - np.floor(age))
-        return np.full(age.shape, self.years)
+        return np.full(np.shape(age), self.years)
 
     def place_lives(self, age, duration, rule="last-birthday"):
         return self.then.place_lives(age, duration, rule)
@@ -418,12 +414,12 @@ def rated(
     if extra_q is not None:
         table = _table_of(model, "extra_q", "use extra_force for a law")
         loaded = retabled(table, np.minimum(1.0, table.q + extra_q))
-        model = loaded if extra_q_years is None else Spliced(loaded, table, extra_q_years, True)
+        model = loaded if extra_q_years is None else Spliced(loaded, table, extra_q_years)
     # 5. extra force
     if extra_force is not None:
         loaded = ForceAdjusted(model, 1.0, extra_force)
         model = (
-            loaded if extra_force_years is None else Spliced(loaded, model, extra_force_years, False)
+            loaded if extra_force_years is None else Spliced(loaded, model, extra_force_years)
         )
     shift = (base.shift if isinstance(base, Shifted) else 0.0) + (age_shift or 0.0)
     return Shifted(model, shift) if shift != 0.0 else model

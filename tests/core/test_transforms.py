@@ -94,9 +94,31 @@ def test_q_multiplier_and_extra_q_hand_computed():
     assert model.curtate_expectation([60.0], [0.0])[0] == pytest.approx(0.98, rel=1e-14)
     loaded = rated(table, extra_q=0.05, extra_q_years=1)
     # hand-computed: ₂p_60 = (1 − 0.1 − 0.05)(1 − 0.2) = 0.68 and, from 60.5 (UDD), the extra
-    # covers only the rest of the year of age 60: ₁.₅p = (1 − 0.15)/(1 − 0.5·0.15)·(1 − 0.2)
+    # covers one policy year, ages 60.5 to 61.5, on the loaded rates 0.15 and 0.25, then the
+    # table's own from 61.5: ₁.₅p = (1 − 0.15)/(1 − 0.5·0.15) · (1 − 0.5·0.25) · (1 − 0.2)/(1 − 0.5·0.2)
     assert loaded.survival([60.0], [0.0], [2.0])[0, 0] == pytest.approx(0.68, rel=1e-14)
-    assert loaded.survival([60.5], [0.0], [1.5])[0, 0] == pytest.approx(0.85 / 0.925 * 0.8, rel=1e-14)
+    assert loaded.survival([60.5], [0.0], [1.5])[0, 0] == pytest.approx(
+        0.85 / 0.925 * 0.875 * 0.8 / 0.9, rel=1e-14)
+
+
+def test_time_limited_extras_count_policy_years_from_an_exact_age():
+    """An extra for n years covers durations 0 to n whatever the fraction of the age (common
+    practice: underwriters state an extra as so many years from the policy's start): during
+    them the life has the loaded rates, after them the table's own, on either extra."""
+    table = _small_table()
+    for extra, years in (({"extra_q": 0.05}, "extra_q_years"),
+                         ({"extra_force": 0.05}, "extra_force_years")):
+        limited = rated(table, **extra, **{years: 1})
+        always = rated(table, **extra)
+        age = np.array([60.3, 60.9])
+        inside = limited.survival(age, [0.0, 0.0], [0.5, 1.0])
+        np.testing.assert_allclose(inside, always.survival(age, [0.0, 0.0], [0.5, 1.0]),
+                                   rtol=1e-14)
+        # after the year: ₜp = ₁p(loaded) · ₜ₋₁p_{x+1}(table)
+        after = limited.survival(age, [0.0, 0.0], [1.5])[:, 0]
+        expected = (always.survival(age, [0.0, 0.0], [1.0])[:, 0]
+                    * table.survival(age + 1.0, [0.0, 0.0], [0.5])[:, 0])
+        np.testing.assert_allclose(after, expected, rtol=1e-14)
 
 
 def test_q_multiplier_on_a_law_is_refused_with_a_suggestion():
