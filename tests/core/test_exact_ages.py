@@ -107,8 +107,8 @@ def test_a_life_alone_and_in_a_mixed_batch_give_the_same_bits(name, built, monke
     years without an expansion share a batch. Every life gets the same bits either way, on a
     basis with its expansions built (as a stored basis has from its load) and on one that
     still computes exact ages directly (an inline basis before enough lives pay for them)."""
-    if built:  # the shared model, whose expansions the test above has built (a law's take
-        m = _model(name)  # seconds to build, so they are built once per basis)
+    if built:  # the shared model: the test above has built its expansions, which take
+        m = _model(name)  # seconds on a law, so they are built once per basis
         assert m.exact_ages is not None
     else:  # a fresh model, which computes exact ages directly until enough lives pay
         monkeypatch.setattr(lifetime, "EXPANSION_AFTER_LIVES", 10**12)
